@@ -1,0 +1,1 @@
+"""Pure computation over fitted scikit-learn models and pandas data. No Qt here."""
