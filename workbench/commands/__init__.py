@@ -1,0 +1,1 @@
+"""Subcommands of the ``workbench`` command; each module has ``register(subparsers)``."""
