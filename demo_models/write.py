@@ -141,7 +141,8 @@ def ensure_demo(
     target = Path(directory) if directory is not None else demo_cache_dir()
     paths = demo_paths(target)
     if all(path.is_file() for path in paths.values()):
-        step(progress, cancel, 1.0, "Demo ready")
+        if progress is not None:
+            progress(1.0, "Demo ready")
         return paths
 
     target.parent.mkdir(parents=True, exist_ok=True)
