@@ -1,0 +1,182 @@
+"""Permutation importance: how much a metric worsens when a feature's values are shuffled.
+
+The importance of feature j for one repeat is score(data) - score(data with column j permuted),
+with the sign turned for losses so that a positive value always means the model relies on the
+feature; the mean and the standard deviation over repeats are reported. This is the definition
+of sklearn.inspection.permutation_importance (scikit-learn user guide, "Permutation feature
+importance"; Breiman 2001, Machine Learning 45(1), section 10, for random forests).
+
+Blocks of features can be permuted together, one row permutation for all columns of the block,
+so that associated features cannot stand in for each other; this gives the importance of the
+block as a whole (blocks, for example, from ``associations.cluster_order``).
+
+The permuted copies are stacked into one frame per chunk and scored once per chunk.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from workbench.engine.adapter import ModelAdapter
+from workbench.engine.effects import CHUNK_ROWS, model_frame, stacked_frame
+from workbench.engine.errors import InputError
+from workbench.engine.jobs import chunk_slices, rng, step
+from workbench.engine.metrics import as_weights, default_metric, metric_function
+from workbench.engine.validation import coerce_target
+
+
+@dataclass(frozen=True)
+class GroupImportance:
+    """Importance of a block of features permuted together: ``importances`` (repeats,)."""
+
+    features: list[str]
+    importances: np.ndarray
+    mean: float
+    spread: float
+
+
+@dataclass(frozen=True)
+class Importance:
+    """Permutation importance of every input column.
+
+    ``importances`` (p, repeats): the worsening of ``metric`` per repeat (positive = the model
+    relies on the feature); ``mean`` (p,), ``spread`` (p,): their mean and standard deviation
+    (population, ddof=0, as scikit-learn's ``importances_std``); ``baseline``: the metric on the
+    unpermuted rows; ``rows_used``: rows scored (after ``max_rows`` sampling).
+    """
+
+    features: list[str]
+    importances: np.ndarray
+    mean: np.ndarray
+    spread: np.ndarray
+    baseline: float
+    metric: str
+    greater_is_better: bool
+    repeats: int
+    seed: int
+    rows_used: int
+    groups: list[GroupImportance] = field(default_factory=list)
+    weighted: bool = False
+    exposure: bool = False
+
+    @property
+    def order(self) -> np.ndarray:
+        """Positions of the features, most important first (ties keep input order)."""
+        return np.argsort(-self.mean, kind="stable")
+
+
+def _targets(adapter: ModelAdapter, y, n: int) -> np.ndarray:
+    """Target values in the form the metric takes (0/1 for binary, labels, or numbers)."""
+    series = y.reset_index(drop=True) if isinstance(y, pd.Series) else pd.Series(np.asarray(y))
+    if len(series) != n:
+        raise InputError(f"{len(series)} target values for {n} rows")
+    series = coerce_target(adapter, series)
+    missing = int(series.isna().sum())
+    if missing:
+        raise InputError(f"the target is missing in {missing} row(s); drop them or fill them first")
+    if adapter.classes:
+        unknown = ~series.isin(adapter.classes)
+        if unknown.any():
+            raise InputError(f"the target holds value(s) that are not classes of the model "
+                             f"{adapter.classes}, for example {series[unknown].iloc[0]!r}")
+        if adapter.task == "binary":
+            return (series == adapter.positive_class).to_numpy(dtype=int)
+        return series.to_numpy(dtype=object)
+    return series.to_numpy(dtype=float)
+
+
+def _units(features: list[str], groups: Sequence[Sequence[str]] | None) -> list[list[str]]:
+    units = [[f] for f in features]
+    for g in groups or ():
+        block = list(dict.fromkeys(g))
+        if not block:
+            raise InputError("a group of features to permute together is empty")
+        unknown = [c for c in block if c not in features]
+        if unknown:
+            raise InputError(f"group member(s) not input columns of the model: {', '.join(unknown)}")
+        units.append(block)
+    return units
+
+
+def permutation_importance(adapter: ModelAdapter, frame: pd.DataFrame, y, *, metric: str | None = None,
+                           repeats: int = 5, seed: int = 0,
+                           groups: Sequence[Sequence[str]] | None = None, sample_weight=None,
+                           exposure=None, max_rows: int | None = None, progress=None,
+                           cancel=None) -> Importance:
+    """Permutation importance of each input column (and of each block in ``groups``).
+
+    ``metric``: ``auc``, ``log_loss`` or ``brier`` for classifiers (on the probability of the
+    class of interest; multiclass on the probability matrix), ``rmse`` or ``mae`` for
+    regressors, ``poisson_deviance`` for counts; default ``metrics.default_metric(task)``.
+    ``exposure`` (count models): the model predicts a frequency; the deviance is that of the
+    observed frequency ``y / exposure`` weighted by exposure (times ``sample_weight``, if given).
+    ``max_rows``: score a sample of this many rows (drawn with ``seed``).
+    """
+    if int(repeats) < 1:
+        raise InputError(f"repeats must be at least 1, not {repeats}")
+    name = metric or default_metric(adapter.task)
+    scorer = metric_function(name, adapter.task,
+                             classes=adapter.classes if adapter.task == "multiclass" else None)
+    x = model_frame(adapter, frame)
+    n_all = len(x)
+    target = _targets(adapter, y, n_all)
+    weight = as_weights(sample_weight, n_all)
+    if exposure is not None:
+        if adapter.task != "count":
+            raise InputError(f"exposure applies to count models; this is a {adapter.task} model")
+        e = np.asarray(exposure, dtype=float)
+        if e.shape != (n_all,) or not np.all(np.isfinite(e)) or np.any(e <= 0):
+            raise InputError("exposure must be one positive value per row")
+        target = target / e
+        weight = e if weight is None else weight * e
+    generator = rng(seed)
+    keep = np.arange(n_all)
+    if max_rows is not None and n_all > int(max_rows):
+        if int(max_rows) < 2:
+            raise InputError(f"max_rows must be at least 2, not {max_rows}")
+        keep = np.sort(generator.choice(n_all, size=int(max_rows), replace=False))
+        x = x.iloc[keep].reset_index(drop=True)
+        target = target[keep]
+        weight = None if weight is None else weight[keep]
+    n = len(x)
+    if name == "auc" and np.unique(target).size < 2:
+        raise InputError("the target holds one class only in these rows; AUC needs both "
+                         "(choose more rows or another metric)")
+    respond = adapter.probabilities if adapter.task == "multiclass" else adapter.response
+
+    def evaluate(response) -> float:
+        return scorer(target, response, weight)
+
+    baseline = evaluate(respond(x))
+    units = _units(list(x.columns), groups)
+    n_tasks = len(units) * int(repeats)
+    drops = np.empty(n_tasks)
+    per_chunk = max(1, CHUNK_ROWS // n)
+    for sl in chunk_slices(n_tasks, per_chunk):
+        step(progress, cancel, sl.start / n_tasks,
+             f"permutation importance: {sl.start} of {n_tasks} shuffles")
+        k = sl.stop - sl.start
+        base = np.tile(np.arange(n), k)
+        column_index: dict[str, np.ndarray] = {}
+        for b, t in enumerate(range(sl.start, sl.stop)):
+            perm = generator.permutation(n)  # one permutation per (unit, repeat), in task order
+            for c in units[t // int(repeats)]:
+                idx = column_index.setdefault(c, base.copy())
+                idx[b * n:(b + 1) * n] = perm
+        response = respond(stacked_frame(x, base, column_index=column_index))
+        for b, t in enumerate(range(sl.start, sl.stop)):
+            permuted = evaluate(response[b * n:(b + 1) * n])
+            drops[t] = baseline - permuted if scorer.greater_is_better else permuted - baseline
+    step(progress, cancel, 1.0, "permutation importance: done")
+    table = drops.reshape(len(units), int(repeats))
+    p = x.shape[1]
+    groups_out = [GroupImportance(list(units[u]), table[u].copy(), float(table[u].mean()),
+                                  float(table[u].std())) for u in range(p, len(units))]
+    return Importance(list(x.columns), table[:p].copy(), table[:p].mean(axis=1),
+                      table[:p].std(axis=1), float(baseline), name, scorer.greater_is_better,
+                      int(repeats), int(seed), int(n), groups_out, sample_weight is not None,
+                      exposure is not None)
