@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import sys
+
 from workbench.commands.common import (
     add_data_arguments,
     add_json,
@@ -40,7 +42,11 @@ def run(args) -> int:
         print_json(payload)
     else:
         _print_readable(payload)
-    return 2 if has_errors(findings) else 0
+    if has_errors(findings):
+        first = next(f for f in findings if f.level == "error")
+        print(f"workbench: error: {first.message}", file=sys.stderr)
+        return 2
+    return 0
 
 
 def _warning(text: str):
