@@ -1,0 +1,7 @@
+"""Attributions (SHAP values) per raw input column; the public face is ``workbench.engine.attributions``."""
+
+from workbench.engine.attribution.background import select_background
+from workbench.engine.attribution.explain import METHOD_CHOICES, explain
+from workbench.engine.attribution.result import METHODS, Attributions
+
+__all__ = ["METHODS", "METHOD_CHOICES", "Attributions", "explain", "select_background"]
