@@ -193,6 +193,12 @@ def test_metrics_for_task_multiclass_matches_sklearn():
     assert out["log_loss"] == pytest.approx(skm.log_loss(y, P))
     assert out["accuracy"] == pytest.approx(skm.accuracy_score(y, P.argmax(1)))
     assert metric_function("auc", "multiclass")(y, P) == pytest.approx(out["auc_macro"])
+    # a segment without class 2: the mean of the one-vs-rest AUCs of the classes present
+    seg = y < 2
+    part = metrics_for_task("multiclass", y[seg], P[seg], classes=[0, 1, 2])
+    assert part["auc_macro"] == pytest.approx(np.mean(
+        [skm.roc_auc_score(y[seg] == c, P[seg, c]) for c in (0, 1)]))
+    assert part["log_loss"] == pytest.approx(skm.log_loss(y[seg], P[seg], labels=[0, 1, 2]))
 
 
 def test_metrics_for_task_dispatch(cancer_scores):
@@ -206,6 +212,8 @@ def test_metrics_for_task_dispatch(cancer_scores):
         skm.mean_poisson_deviance(y, p + 0.01))
     with pytest.raises(InputError):
         metrics_for_task("survival", y, p)
+    with pytest.raises(InputError, match="exposure"):
+        metrics_for_task("count", y, p + 0.01, sample_weight=np.ones(len(y)))
 
 
 @pytest.mark.parametrize(

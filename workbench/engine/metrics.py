@@ -64,11 +64,13 @@ def adverse_decision(score, cutoff: float, adverse_if: str = "above") -> np.ndar
     so that in both cases a row exactly at the cutoff goes the same way as the riskier side.
     """
     s = np.asarray(score, dtype=float)
-    if adverse_if == "above":
-        return s >= cutoff
-    if adverse_if == "below":
-        return s < cutoff
-    raise InputError(f'adverse_if must be "above" or "below", not {adverse_if!r}')
+    return s >= cutoff if check_direction(adverse_if) == "above" else s < cutoff
+
+
+def check_direction(adverse_if: str) -> str:
+    if adverse_if not in ("above", "below"):
+        raise InputError(f'adverse_if must be "above" or "below", not {adverse_if!r}')
+    return adverse_if
 
 
 def _check_probability(p: np.ndarray, name: str = "probability") -> None:
@@ -112,6 +114,7 @@ def binary_metrics(y, p, *, cutoff: float | None = None, sample_weight=None,
     which equals the two-sample Kolmogorov-Smirnov statistic of the scores of positives against
     those of negatives (weighted when ``sample_weight`` is given).
     """
+    check_direction(adverse_if)
     yy = binary_labels(y)
     pp = as_vector(p, "probability")
     if pp.shape[0] != yy.shape[0]:
@@ -145,8 +148,6 @@ def binary_metrics(y, p, *, cutoff: float | None = None, sample_weight=None,
             tn=float(ww[~flag & ~pos].sum()),
             fn=float(ww[~flag & pos].sum()),
         )
-    else:
-        adverse_decision(pp[:0], 0.0, adverse_if)  # validate the direction anyway
     return BinaryMetrics(**out)
 
 
@@ -348,6 +349,16 @@ def _probability_matrix(response) -> np.ndarray:
     return proba
 
 
+def macro_auc(y, proba: np.ndarray, labels: np.ndarray, sample_weight=None) -> float:
+    """Unweighted mean of one-vs-rest AUCs over the classes present in ``y``: what sklearn's
+    roc_auc_score(multi_class="ovr", average="macro") gives when every class is present;
+    classes absent from ``y`` (a small segment) are skipped instead of failing."""
+    yy = np.asarray(y)
+    aucs = [skm.roc_auc_score(yy == c, proba[:, j], sample_weight=sample_weight)
+            for j, c in enumerate(labels) if np.any(yy == c)]
+    return float(np.mean(aucs))
+
+
 def multiclass_metrics(y, proba, *, classes: Sequence | None = None, sample_weight=None) -> dict:
     """One-vs-rest macro AUC, log loss and accuracy from a probability matrix (n, classes)."""
     P = _probability_matrix(proba)
@@ -357,11 +368,8 @@ def multiclass_metrics(y, proba, *, classes: Sequence | None = None, sample_weig
         raise InputError("the labels hold one class only")
     w = as_weights(sample_weight, yy.shape[0])
     present = np.isin(labels, yy)
-    # sklearn's one-vs-rest AUC needs every class present; average over the classes that are.
-    aucs = [skm.roc_auc_score(yy == c, P[:, j], sample_weight=w)
-            for j, c in enumerate(labels) if present[j]]
     return dict(
-        auc_macro=float(np.mean(aucs)),
+        auc_macro=macro_auc(yy, P, labels, w),
         log_loss=float(skm.log_loss(yy, P, sample_weight=w, labels=labels)),
         accuracy=float(skm.accuracy_score(yy, labels[np.argmax(P, axis=1)], sample_weight=w)),
         n=int(yy.shape[0]),
@@ -387,6 +395,8 @@ def metrics_for_task(task: str, y, output_response, *, cutoff: float | None = No
     if task == "regression":
         return asdict(regression_metrics(y, output_response, sample_weight=sample_weight))
     if task == "count":
+        if sample_weight is not None:
+            raise InputError("count models are weighted by exposure; pass exposure= instead")
         out = asdict(count_metrics(y, output_response, exposure=exposure))
         out.pop("lorenz_exposure")
         out.pop("lorenz_claims")
@@ -453,7 +463,7 @@ def metric_function(name: str, task: str, *, classes: Sequence | None = None) ->
             labels = _class_labels(y, P.shape[1], classes)
             if name == "log_loss":
                 return skm.log_loss(y, P, sample_weight=sample_weight, labels=labels)
-            return multiclass_metrics(y, P, classes=labels, sample_weight=sample_weight)["auc_macro"]
+            return macro_auc(y, P, labels, sample_weight)
         if name == "auc":
             return skm.roc_auc_score(y, response, sample_weight=sample_weight)
         if name == "log_loss":
