@@ -65,15 +65,17 @@ def cramers_v(a_codes: np.ndarray, b_codes: np.ndarray, *, bias_corrected: bool 
     r and k count the levels present on the shared rows. NaN when either has one level.
     """
     both = (a_codes >= 0) & (b_codes >= 0)
-    _, a = np.unique(a_codes[both], return_inverse=True)
-    _, b = np.unique(b_codes[both], return_inverse=True)
+    a, b = a_codes[both], b_codes[both]
     n = a.shape[0]
     if n < 2:
         return float("nan")
-    r, k = int(a.max()) + 1, int(b.max()) + 1
+    ka, kb = int(a.max()) + 1, int(b.max()) + 1
+    table = np.bincount(a * kb + b, minlength=ka * kb).reshape(ka, kb).astype(float)
+    # keep the levels present on the shared rows
+    table = table[table.sum(1) > 0][:, table.sum(0) > 0]
+    r, k = table.shape
     if r < 2 or k < 2:
         return float("nan")
-    table = np.bincount(a * k + b, minlength=r * k).reshape(r, k).astype(float)
     expected = np.outer(table.sum(1), table.sum(0)) / n
     phi2 = float(((table - expected) ** 2 / expected).sum()) / n
     if not bias_corrected:
@@ -92,12 +94,15 @@ def correlation_ratio(codes: np.ndarray, values: np.ndarray) -> float:
     NaN when the numeric values are constant or the category has one level.
     """
     both = (codes >= 0) & np.isfinite(values)
-    _, g = np.unique(codes[both], return_inverse=True)
-    x = values[both]
-    if x.shape[0] < 2 or g.max(initial=0) < 1:
+    g, x = codes[both], values[both]
+    if x.shape[0] < 2:
         return float("nan")
     counts = np.bincount(g)
-    means = np.bincount(g, weights=x) / counts
+    sums = np.bincount(g, weights=x)
+    seen = counts > 0
+    if seen.sum() < 2:
+        return float("nan")
+    counts, means = counts[seen], sums[seen] / counts[seen]
     centred = x - x.mean()
     total = float(centred @ centred)
     if total <= 0:
