@@ -71,7 +71,7 @@ def test_spearman_with_ties_and_missing_matches_pandas():
 def test_uncorrected_cramers_v_matches_scipy(mixed):
     """Uncorrected Cramer's V equals scipy.stats.contingency.association(method="cramer")
     on the pairwise-complete contingency table (Cramer 1946, Mathematical Methods of
-    Statistics, section 21.9)."""
+    Statistics; the definition sqrt(chi2 / (n (min(r, k) - 1))))."""
     s, t = _pairwise(mixed, "grade", "region")
     table = pd.crosstab(s, t).to_numpy()
     ours = associations(mixed, bias_corrected=False)
@@ -82,7 +82,7 @@ def test_uncorrected_cramers_v_matches_scipy(mixed):
 
 
 def test_bias_corrected_cramers_v_hand_example():
-    """Bergsma (2013), J. Korean Stat. Soc. 42:323-328, section 3. Worked by hand for the
+    """Bergsma (2013), J. Korean Stat. Soc. 42(3):323-328, section 2. Worked by hand for the
     2 x 2 table [[3, 1], [1, 3]] (n = 8): chi2 = 2, phi2 = 1/4; phi2+ = 1/4 - 1/7 = 3/28;
     r~ = k~ = 2 - 1/7 = 13/7; V~ = sqrt((3/28) / (6/7)) = sqrt(1/8). Uncorrected: 1/2."""
     a = np.array([0, 0, 0, 0, 1, 1, 1, 1])

@@ -25,7 +25,7 @@ def _psi(x, y):
 
 
 def test_delong_variance_hand_example():
-    """DeLong, DeLong and Clarke-Pearson (1988), Biometrics 44:837-845, section 3, worked by hand.
+    """DeLong, DeLong and Clarke-Pearson (1988), Biometrics 44:837-845, structural components, worked by hand.
     Positives X = .9, .6, .4; negatives Y = .7, .3, .2.
     V10(X_i) = share of negatives below X_i: 1, 2/3, 2/3 -> AUC = 7/9.
     V01(Y_j) = share of positives above Y_j: 1/3, 1, 1 (mean also 7/9).
@@ -40,7 +40,7 @@ def test_delong_variance_hand_example():
 
 
 def test_delong_covariance_equals_direct_structural_components():
-    """DeLong et al. (1988) section 3 computed literally with the kernel psi over all
+    """DeLong et al. (1988) structural components computed literally with the kernel psi over all
     positive-negative pairs (ties 1/2), against the midrank form of Sun and Xu (2014, IEEE
     Signal Processing Letters 21(11)); scores with ties, covariance of two scores."""
     rng = np.random.default_rng(4)
@@ -66,7 +66,7 @@ def test_delong_covariance_equals_direct_structural_components():
 
 def test_delong_agrees_with_paired_bootstrap():
     """The DeLong standard error of AUC_b - AUC_a agrees with the paired bootstrap's (Efron and
-    Tibshirani 1993, section 6.2) within sampling error: with 500 resamples the bootstrap SE is
+    Tibshirani 1993, chapter 6, from memory) within sampling error: with 500 resamples the bootstrap SE is
     itself uncertain by about 1/sqrt(2*500) = 3%, we allow 12%; hence z agrees too."""
     rng = np.random.default_rng(7)
     n = 1000
@@ -91,7 +91,7 @@ def test_delong_refuses_one_class():
 
 
 def test_paired_bootstrap_uses_the_same_rows_for_both_models():
-    """Definition of the paired bootstrap (Efron and Tibshirani 1993, section 6.2): each
+    """Definition of the paired bootstrap (Efron and Tibshirani 1993, chapter 6, from memory): each
     resample's difference is metric(b) - metric(a) on the same resampled rows; replayed here
     with numpy's default_rng(seed).integers, chunk by chunk. Same seed, same result."""
     rng = np.random.default_rng(0)
@@ -188,7 +188,7 @@ def test_double_lift_hand_example():
 
 
 def test_double_lift_bands_have_equal_weight():
-    """Equal-weight bands (Goldburd et al. 2016, section 7.2.2 / 7.2.1 quantiles of exposure):
+    """Equal-weight bands (Goldburd et al. 2016, section 7.2.2):
     with unit weights and n divisible by the bands each band holds n / bands rows; with unequal
     weights each band's weight is within one row's weight of total / bands; the bands follow
     the sort ratio; weighted means use the weights (np.average)."""

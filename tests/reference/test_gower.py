@@ -22,7 +22,7 @@ def frame():
 
 
 def test_gower_hand_example_with_missing_values(frame):
-    """Gower (1971), section 2: distance = sum_k d_k / sum_k delta_k over columns present in
+    """Gower (1971), the general coefficient: distance = sum_k d_k / sum_k delta_k over columns present in
     both rows; numeric d = |x - y| / range, categorical d = 0 if equal else 1. Ranges: income
     100 - 20 = 80, age 70 - 30 = 40. Distances to row 0 (20, 30, rent):
     r0: 0.

@@ -152,7 +152,7 @@ def test_regression_metrics_match_sklearn():
 
 
 def test_lorenz_gini_hand_example():
-    """Frees, Meyers and Cummings (2011, JASA 106:1085-1098), ordered Lorenz curve with constant
+    """Frees, Meyers and Cummings (2011, JASA 106; pages from memory), ordered Lorenz curve with constant
     base premium: sort by predicted rate, cumulative exposure share vs cumulative claims share,
     Gini = 1 - 2 * area. Worked by hand: claims 0,1,0,2 with predictions .1,.4,.2,.3 and unit
     exposure; sorted claims 0,0,2,1 give points (0,0)(.25,0)(.5,0)(.75,2/3)(1,1); trapezoid area
@@ -166,7 +166,7 @@ def test_lorenz_gini_hand_example():
 def test_count_metrics_deviance_matches_sklearn_with_exposure():
     """Poisson deviance of rates weighted by exposure equals sklearn.metrics.mean_poisson_deviance
     and the Poisson deviance formula 2 sum w (y log(y/mu) - (y - mu)) / sum w (McCullagh and
-    Nelder, Generalized Linear Models, 2nd ed., section 2.3). Exposure x rate orders as rate."""
+    Nelder, Generalized Linear Models, 2nd ed., 1989, chapter 2; from memory). Exposure x rate orders as rate."""
     rng = np.random.default_rng(2)
     e = rng.uniform(0.2, 1.0, 500)
     rate = np.exp(rng.normal(-2, 0.5, 500))

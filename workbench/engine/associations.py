@@ -60,7 +60,7 @@ def cramers_v(a_codes: np.ndarray, b_codes: np.ndarray, *, bias_corrected: bool 
     """Cramer's V of two integer-coded columns (-1 = missing, dropped pairwise).
 
     Uncorrected: sqrt(phi2 / min(r - 1, k - 1)) with phi2 = chi2 / n. Corrected (Bergsma 2013,
-    J. Korean Stat. Soc. 42:323-328): phi2+ = max(0, phi2 - (k-1)(r-1)/(n-1)),
+    J. Korean Stat. Soc. 42(3):323-328, section 2): phi2+ = max(0, phi2 - (k-1)(r-1)/(n-1)),
     r~ = r - (r-1)^2/(n-1), k~ = k - (k-1)^2/(n-1), V~ = sqrt(phi2+ / min(r~ - 1, k~ - 1)).
     r and k count the levels present on the shared rows. NaN when either has one level.
     """
@@ -90,7 +90,7 @@ def cramers_v(a_codes: np.ndarray, b_codes: np.ndarray, *, bias_corrected: bool 
 def correlation_ratio(codes: np.ndarray, values: np.ndarray) -> float:
     """eta = sqrt(between-group sum of squares / total sum of squares) on shared rows.
 
-    The correlation ratio (Pearson 1903; eta^2 is the R^2 of a one-way analysis of variance).
+    Pearson's correlation ratio; eta^2 is the R^2 of a one-way analysis of variance.
     NaN when the numeric values are constant or the category has one level.
     """
     both = (codes >= 0) & np.isfinite(values)

@@ -51,7 +51,7 @@ def delong_components(y, scores) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
     V10[r, i] = share of negatives that positive i outranks in score r (ties count one half);
     V01[r, j] = share of positives that outrank negative j (DeLong, DeLong and Clarke-Pearson
-    1988, Biometrics 44:837-845, section 3). Computed from midranks as in Sun and Xu (2014,
+    1988, Biometrics 44:837-845). Computed from midranks as in Sun and Xu (2014,
     IEEE Signal Processing Letters 21(11):1389-1393): V10 = (rank in all - rank among
     positives) / n, without forming the m x n comparison matrix.
     """
@@ -135,7 +135,7 @@ def paired_bootstrap(metric_fn: Callable[..., float], y, a, b, *, resamples: int
 
     ``metric_fn(y, response, sample_weight) -> float`` (e.g. ``metrics.metric_function``);
     ``a`` and ``b`` are the two models' responses, (n,) or (n, classes). Percentile interval
-    (Efron and Tibshirani, An Introduction to the Bootstrap, 1993, section 13.3).
+    (Efron and Tibshirani, An Introduction to the Bootstrap, 1993, chapter 13; from memory).
     """
     yy = np.asarray(y)
     A, B = np.asarray(a), np.asarray(b)

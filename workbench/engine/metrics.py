@@ -278,7 +278,7 @@ def lorenz_curve(claims, rate, exposure) -> tuple[np.ndarray, np.ndarray, float]
     Rows are sorted by predicted rate, lowest first; the curve runs through (cumulative share
     of exposure, cumulative share of claims). Gini = 1 - 2 * (area under the curve, trapezoidal),
     i.e. twice the area between the line of equality and the curve (Frees, Meyers and Cummings
-    2011, "Summarizing insurance scores using a Gini index", JASA 106:1085-1098, with a constant
+    2011, "Summarizing insurance scores using a Gini index", JASA 106 (pages from memory), with a constant
     base premium per unit exposure so the premium axis becomes exposure). Rows with tied
     predicted rates are merged into one step so the result does not depend on row order.
     """
