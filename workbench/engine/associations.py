@@ -174,6 +174,8 @@ def associations(frame: pd.DataFrame, *, columns: Sequence[str] | None = None,
         raise InputError(f"columns not in the data: {', '.join(map(str, missing))}")
     if not features:
         raise InputError("no columns to associate")
+    if len(set(features)) < len(features):
+        raise InputError("a column is named twice")
     forced = set(categorical or ())
     cat = [c for c in features if c in forced or is_categorical(frame[c])]
     num = [c for c in features if c not in cat]
@@ -202,7 +204,7 @@ def associations(frame: pd.DataFrame, *, columns: Sequence[str] | None = None,
             matrix[pos[a], pos[b]] = matrix[pos[b], pos[a]] = v
         kind[pos[a], [pos[c] for c in cat]] = "cramers_v"
     if num and cat:
-        values = {c: pd.to_numeric(frame[c], errors="coerce").to_numpy(dtype=float) for c in num}
+        values = {c: numeric[c].to_numpy() for c in num}
         for a in cat:
             for b in num:
                 v = correlation_ratio(codes[a], values[b])
