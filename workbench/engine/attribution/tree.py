@@ -9,6 +9,7 @@ caller can fall back to the model-agnostic method (and say why) instead of showi
 from __future__ import annotations
 
 import hashlib
+import os
 import warnings
 import weakref
 
@@ -42,8 +43,9 @@ TREE_MODELS = (
 _CACHE: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
 _CACHE_PER_MODEL = 4
 
-# Off switch for our kernel (tests of the shap route, comparisons while the kernel changes).
-KERNEL_ENABLED = True
+# Off switch for our kernel (tests of the shap route, comparisons while the kernel changes);
+# the environment variable WORKBENCH_TREE_KERNEL=off sets it for a whole process.
+KERNEL_ENABLED = os.environ.get("WORKBENCH_TREE_KERNEL", "on").strip().lower() != "off"
 
 
 class Unsuitable(Exception):
