@@ -1,17 +1,107 @@
-"""Start the Qt application (placeholder window until the levels land)."""
+"""Start the Qt application: an empty window, the demo, or files named on the command line."""
 
 from __future__ import annotations
 
 import sys
+from pathlib import Path
+
+DEMO_CUTOFF = 0.20  # the demo lender refers applications with a default probability of 20 % or more
+DEMO_FEATURE = "debt_to_income"
+DEMO_PAIR = ("debt_to_income", "employment_type")
 
 
-def run_app(*, demo: bool = False) -> int:
-    from PySide6.QtWidgets import QApplication, QLabel, QMainWindow
+def application():
+    from PySide6.QtWidgets import QApplication
 
-    app = QApplication.instance() or QApplication(sys.argv)
-    win = QMainWindow()
-    win.setWindowTitle("workbench")
-    win.setCentralWidget(QLabel("workbench"))
-    win.resize(1280, 800)
-    win.show()
+    app = QApplication.instance() or QApplication(sys.argv[:1])
+    app.setApplicationName("workbench")
+    app.setOrganizationName("workbench")
+    return app
+
+
+def open_demo(window, paths: dict | None = None, *, rows: int | None = None) -> None:
+    """Champion as model A, challenger as model B, on the current period; reference = the fit period.
+
+    ``rows`` keeps only the first rows of both periods (tests use a small demo).
+    """
+    from demo_models.lending import LENDING_ID, LENDING_TARGET
+    from demo_models.write import ensure_demo
+    from workbench.engine.loading import dataset_from_frame, load_data
+
+    paths = paths or ensure_demo()
+    ws = window.ctx.workspace
+    ws.update_settings(target=LENDING_TARGET, cutoff=DEMO_CUTOFF)
+    current = load_data(paths["lending_current"], target=LENDING_TARGET, id_column=LENDING_ID)
+    reference = load_data(paths["lending_reference"], target=LENDING_TARGET, id_column=LENDING_ID)
+    if rows is not None:
+        current = _head(current, rows, dataset_from_frame)
+        reference = _head(reference, rows, dataset_from_frame)
+    ws.set_data(current)
+    ws.set_reference(reference)
+    # We built these files ourselves, so their skops types are trusted without asking.
+    window.open_model(paths["lending_champion"], "A", trust=True)
+    window.open_model(paths["lending_challenger"], "B", trust=True)
+    window.ctx.focus.reset()
+    window.ctx.focus.update(feature=DEMO_FEATURE, pair=DEMO_PAIR, row=_riskiest_row(window))
+    window.ctx.focus.reset(window.ctx.focus.state)
+
+
+def _head(data, rows, from_frame):
+    small = from_frame(data.frame.head(rows).reset_index(drop=True), target=data.target,
+                       id_column=data.id_column)
+    return small
+
+
+def _riskiest_row(window) -> int:
+    """A telling first case: the highest score of model A (the model's own output, no explanation)."""
+    ws = window.ctx.workspace
+    adapter = ws.adapter("A")
+    if adapter is None or ws.frame is None:
+        return 0
+    import numpy as np
+
+    return int(np.argmax(adapter.score(ws.frame)))
+
+
+def snapshot(window, directory: Path, *, timeout_s: float = 300.0) -> list[Path]:
+    """Visit every level, wait for its jobs, and save a PNG of the window for each."""
+    directory = Path(directory)
+    directory.mkdir(parents=True, exist_ok=True)
+    out = []
+    for i, name in enumerate(window.levels, start=1):
+        window.show_level(name)
+        window.ctx.runner.wait_idle(timeout_s)
+        application().processEvents()
+        window.ctx.runner.wait_idle(timeout_s)
+        application().processEvents()
+        path = directory / f"{i}_{name.lower()}.png"
+        window.grab().save(str(path))
+        out.append(path)
+    return out
+
+
+def run_app(*, demo: bool = False, snapshot_dir: Path | None = None, model: Path | None = None,
+            model_b: Path | None = None, data: Path | None = None, target: str | None = None,
+            trust: bool = False) -> int:
+    app = application()
+    from workbench.ui.window import MainWindow
+
+    window = MainWindow()
+    window.show()
+    if demo:
+        window.statusBar().showMessage("Preparing the demo (built once, then cached)…")
+        app.processEvents()
+        open_demo(window)
+    else:
+        if data is not None:
+            window.open_data(data, "data", target=target)
+        if model is not None:
+            window.open_model(model, "A", trust=trust or None)
+        if model_b is not None:
+            window.open_model(model_b, "B", trust=trust or None)
+    if snapshot_dir is not None:
+        for path in snapshot(window, snapshot_dir):
+            print(path)
+        window.close()
+        return 0
     return app.exec()

@@ -1,0 +1,62 @@
+"""The job area: one progress bar and cancel button per running job."""
+
+from __future__ import annotations
+
+from PySide6.QtWidgets import QHBoxLayout, QLabel, QProgressBar, QPushButton, QVBoxLayout, QWidget
+
+from workbench.ui.jobs import Job, JobRunner
+
+
+class JobRow(QWidget):
+    def __init__(self, job: Job, runner: JobRunner, parent=None) -> None:
+        super().__init__(parent)
+        self.job = job
+        self.title = QLabel(job.title)
+        self.bar = QProgressBar()
+        self.bar.setRange(0, 1000)
+        self.bar.setTextVisible(True)
+        self.bar.setFormat("%p%")
+        self.cancel = QPushButton("Cancel")
+        self.cancel.clicked.connect(lambda: (runner.cancel(job), self.cancel.setEnabled(False),
+                                             self.cancel.setText("Cancelling…")))
+        layout = QHBoxLayout(self)
+        layout.setContentsMargins(4, 0, 4, 0)
+        layout.addWidget(self.title, 2)
+        layout.addWidget(self.bar, 3)
+        layout.addWidget(self.cancel)
+
+    def show_progress(self) -> None:
+        self.bar.setValue(int(self.job.fraction * 1000))
+        if self.job.message:
+            self.title.setText(f"{self.job.title} — {self.job.message}")
+
+
+class JobArea(QWidget):
+    def __init__(self, runner: JobRunner, parent=None) -> None:
+        super().__init__(parent)
+        self.runner = runner
+        self.rows: dict[int, JobRow] = {}
+        self.last = QLabel("No work running.")
+        self.last.setStyleSheet("color: #555;")
+        self.layout_ = QVBoxLayout(self)
+        self.layout_.setContentsMargins(2, 2, 2, 2)
+        self.layout_.addWidget(self.last)
+        runner.job_started.connect(self._started)
+        runner.job_progressed.connect(self._progressed)
+        runner.job_ended.connect(self._ended)
+
+    def _started(self, job: Job) -> None:
+        row = JobRow(job, self.runner)
+        self.rows[job.id] = row
+        self.layout_.insertWidget(0, row)
+
+    def _progressed(self, job: Job) -> None:
+        if job.id in self.rows:
+            self.rows[job.id].show_progress()
+
+    def _ended(self, job: Job, outcome: str) -> None:
+        row = self.rows.pop(job.id, None)
+        if row is not None:
+            row.setParent(None)
+            row.deleteLater()
+        self.last.setText(f"Last: {job.title} — {outcome}")

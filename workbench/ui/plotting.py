@@ -1,0 +1,154 @@
+"""Shared plot parts: our colours, a titled plot with units, hover read-outs, PNG/SVG export.
+
+Colours: contributions that raise the score are vermillion, those that lower it bluish green
+(a colour-blind-safe pair); feature values use cividis, signed association a colour-blind-safe
+blue-to-yellow diverging map. No pink-red to blue gradient anywhere.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pyqtgraph as pg
+import pyqtgraph.exporters
+from PySide6.QtCore import QPointF, Qt
+from PySide6.QtGui import QAction, QColor
+from PySide6.QtWidgets import QFileDialog, QLabel, QVBoxLayout, QWidget
+
+RAISES = "#D55E00"  # vermillion: pushes the score up
+LOWERS = "#009E73"  # bluish green: pushes the score down
+NEUTRAL = "#7A7A7A"
+FOCUS_MARK = "#000000"
+CURVE = "#0B3C5D"  # effect curves: dark blue-grey, apart from the raise/lower pair
+SECOND = "#E69F00"  # a second curve (ALE), orange from the same colour-blind-safe set
+MAX_SCATTER_POINTS = 20_000
+
+pg.setConfigOptions(background="w", foreground="k", antialias=True)
+
+
+def sequential_map() -> pg.ColorMap:
+    return pg.colormap.get("cividis")
+
+
+def diverging_map() -> pg.ColorMap:
+    return pg.colormap.get("CET-CBD1")
+
+
+def colour(hex_text: str, alpha: int = 255) -> QColor:
+    c = QColor(hex_text)
+    c.setAlpha(alpha)
+    return c
+
+
+class TitledPlot(QWidget):
+    """A pyqtgraph plot with a title, labelled axes, a hover line under it and export actions."""
+
+    def __init__(self, title: str, x_label: str = "", y_label: str = "", parent=None) -> None:
+        super().__init__(parent)
+        self.plot_widget = pg.PlotWidget()
+        self.plot: pg.PlotItem = self.plot_widget.getPlotItem()
+        self.hover = QLabel(" ")
+        self.hover.setObjectName("hover")
+        self.hover.setStyleSheet("color: #333; padding-left: 6px;")
+        self.hover.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(0, 0, 0, 0)
+        layout.setSpacing(0)
+        layout.addWidget(self.plot_widget, 1)
+        layout.addWidget(self.hover)
+        self.plot.showGrid(x=True, y=True, alpha=0.15)
+        self.set_text(title, x_label, y_label)
+        self._hover_fn = None
+        self._proxy = pg.SignalProxy(self.plot_widget.scene().sigMouseMoved, rateLimit=30,
+                                     slot=self._moved)
+        self._add_export_actions()
+
+    def set_text(self, title: str, x_label: str | None = None, y_label: str | None = None) -> None:
+        self.title = title
+        self.plot.setTitle(title, size="10pt")
+        if x_label is not None:
+            self.plot.setLabel("bottom", x_label)
+        if y_label is not None:
+            self.plot.setLabel("left", y_label)
+
+    def axis_label(self, which: str) -> str:
+        return self.plot.getAxis(which).labelText
+
+    # ---- hover -----------------------------------------------------------------------------------
+    def on_hover(self, fn) -> None:
+        """``fn(x, y) -> str | None`` in data coordinates, shown under the plot."""
+        self._hover_fn = fn
+
+    def _moved(self, event) -> None:
+        pos = event[0]
+        if self._hover_fn is None or not self.plot.sceneBoundingRect().contains(pos):
+            return
+        point = self.plot.vb.mapSceneToView(pos)
+        text = self._hover_fn(point.x(), point.y())
+        self.hover.setText(text or " ")
+
+    def view_to_scene(self, x: float, y: float) -> QPointF:
+        return self.plot.vb.mapViewToScene(QPointF(x, y))
+
+    # ---- export ---------------------------------------------------------------------------------
+    def _add_export_actions(self) -> None:
+        menu = self.plot.vb.menu
+        menu.addSeparator()
+        for kind in ("PNG", "SVG"):
+            action = QAction(f"Save this plot as {kind}…", menu)
+            action.triggered.connect(lambda _=False, k=kind: self._ask_export(k))
+            menu.addAction(action)
+
+    def _ask_export(self, kind: str) -> None:
+        stem = "".join(ch if ch.isalnum() else "_" for ch in self.title)[:60] or "plot"
+        path, _ = QFileDialog.getSaveFileName(self, f"Save plot as {kind}", f"{stem}.{kind.lower()}",
+                                              f"{kind} (*.{kind.lower()})")
+        if path:
+            self.export(path)
+
+    def export(self, path: str | Path) -> Path:
+        path = Path(path)
+        if path.suffix.lower() == ".svg":
+            exporter = pg.exporters.SVGExporter(self.plot)
+        else:
+            exporter = pg.exporters.ImageExporter(self.plot)
+            exporter.parameters()["width"] = max(int(self.plot.sceneBoundingRect().width()) * 2, 400)
+        exporter.export(str(path))
+        return path
+
+
+def thin_indices(n: int, limit: int = MAX_SCATTER_POINTS, seed: int = 0) -> np.ndarray:
+    """All points up to ``limit``, else a seeded subset of ``limit`` of them."""
+    if n <= limit:
+        return np.arange(n)
+    return np.sort(np.random.default_rng(seed).choice(n, size=limit, replace=False))
+
+
+def value_colours(values: np.ndarray, cmap: pg.ColorMap | None = None) -> list:
+    """Brushes for numeric values on the sequential map (missing values grey)."""
+    cmap = cmap or sequential_map()
+    v = np.asarray(values, dtype=float)
+    finite = np.isfinite(v)
+    lo, hi = (np.nanpercentile(v[finite], [2, 98]) if finite.any() else (0.0, 1.0))
+    scaled = np.clip((v - lo) / (hi - lo if hi > lo else 1.0), 0, 1)
+    table = cmap.getLookupTable(nPts=256, alpha=False)
+    out = []
+    for s, ok in zip(scaled, finite, strict=True):
+        if not ok:
+            out.append(pg.mkBrush(NEUTRAL))
+        else:
+            r, g, b = table[int(s * 255)]
+            out.append(pg.mkBrush(int(r), int(g), int(b), 200))
+    return out
+
+
+def message_item(plot: pg.PlotItem, text: str) -> pg.TextItem:
+    """A centred grey note inside an empty plot ("not available yet", "computing")."""
+    plot.clear()
+    item = pg.TextItem(text, color="#555", anchor=(0.5, 0.5))
+    plot.addItem(item)
+    plot.setXRange(0, 1, padding=0)
+    plot.setYRange(0, 1, padding=0)
+    item.setPos(0.5, 0.5)
+    return item

@@ -1,0 +1,337 @@
+"""The engine results the levels show, requested as cached jobs.
+
+The ui computes no explanation itself: every number here comes from a ``workbench.engine``
+function, run by the :class:`~workbench.ui.jobs.JobRunner`. Keys name the model (SHA-256), the
+data (SHA-256 of data and reference), the segment and the parameters. Where an engine part has
+not landed yet, the request fails at once with :class:`NotAvailable` and the level says so.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import importlib
+import inspect
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from workbench.engine.jobs import rng, step
+from workbench.ui.focus import Focus, FocusState
+from workbench.ui.jobs import JobRunner
+from workbench.ui.segment import segment_rows
+from workbench.ui.workspace import Workspace
+
+SAMPLE_ROWS = 1000  # rows explained for the attribution scatter and mean |attribution|
+EFFECT_ROWS = 2000  # rows behind effect curves, ALE and pair maps
+IMPORTANCE_ROWS = 5000  # rows permuted for permutation importance
+NOT_AVAILABLE = "not available yet"
+
+
+class NotAvailable(Exception):
+    """An engine part this view needs is not there (yet), or no model/data is open."""
+
+
+def engine_part(name: str):
+    """``workbench.engine.<name>``, or None while that part has not landed."""
+    try:
+        return importlib.import_module(f"workbench.engine.{name}")
+    except ImportError:
+        return None
+
+
+def call_engine(fn, *args, **kwargs):
+    """Call an engine function with the keyword options it accepts (others are left out)."""
+    try:
+        params = inspect.signature(fn).parameters
+    except (TypeError, ValueError):
+        return fn(*args, **kwargs)
+    if any(p.kind is inspect.Parameter.VAR_KEYWORD for p in params.values()):
+        return fn(*args, **kwargs)
+    return fn(*args, **{k: v for k, v in kwargs.items() if k in params})
+
+
+def _engine_fn(module: str, name: str, what: str):
+    part = engine_part(module)
+    fn = getattr(part, name, None) if part is not None else None
+    if fn is None:
+        raise NotAvailable(f"{what}: {NOT_AVAILABLE} (workbench.engine.{module}.{name} is not in this build)")
+    return fn
+
+
+@dataclass(frozen=True)
+class Sampled:
+    """An engine result over some rows of the data; ``rows`` are their positions in it."""
+
+    rows: np.ndarray
+    result: object
+
+
+def values_digest(values: dict) -> str:
+    return hashlib.sha256(repr(sorted((k, repr(v)) for k, v in values.items())).encode()).hexdigest()[:16]
+
+
+class Results:
+    """Builds cache keys and engine jobs for one window."""
+
+    def __init__(self, workspace: Workspace, focus: Focus, runner: JobRunner) -> None:
+        self.workspace = workspace
+        self.focus = focus
+        self.runner = runner
+        self._rows_cache: dict = {}
+
+    # ---- rows ---------------------------------------------------------------------------------
+    def segment_rows(self, state: FocusState) -> np.ndarray:
+        key = (self.workspace.generation, state.segment)
+        if key not in self._rows_cache:
+            frame = self.workspace.frame
+            rows = np.arange(0) if frame is None else segment_rows(frame, state.segment)
+            self._rows_cache = {key: rows}
+        return self._rows_cache[key]
+
+    def sample_rows(self, state: FocusState, limit: int) -> np.ndarray:
+        """A seeded sample of the segment's rows (all of them when there are fewer)."""
+        rows = self.segment_rows(state)
+        if len(rows) <= limit:
+            return rows
+        pick = rng(self.workspace.settings.seed).choice(len(rows), size=limit, replace=False)
+        return np.sort(rows[pick])
+
+    # ---- keys -----------------------------------------------------------------------------------
+    def key(self, kind: str, slot: str, state: FocusState | None, **params) -> tuple:
+        held = self.workspace.slot(slot)
+        settings = self.workspace.settings
+        segment = state.segment if state is not None else None
+        return (kind, held.sha256 if held else None, self.workspace.data_key(), segment,
+                repr(settings.positive_class), tuple(sorted(params.items())))
+
+    def _need(self, slot: str):
+        adapter = self.workspace.adapter(slot)
+        if adapter is None:
+            raise NotAvailable(f"no model {slot} is open")
+        if self.workspace.frame is None:
+            raise NotAvailable("no data is open")
+        return adapter
+
+    def _request(self, key, title, fn, on_done, on_error, relevant):
+        return self.runner.request(key, title, fn, on_done, on_error=on_error, relevant=relevant)
+
+    def _fail(self, on_error, exc):
+        if on_error is not None:
+            on_error(exc)
+        return None
+
+    # ---- scoring (the model's own output, not an explanation) --------------------------------
+    def scores(self, slot: str, on_done, on_error=None, relevant=None):
+        """(explained output, response) of every row, for the Portfolio table."""
+        try:
+            adapter = self._need(slot)
+        except NotAvailable as exc:
+            return self._fail(on_error, exc)
+        frame = self.workspace.frame
+
+        def work(progress, cancel):
+            step(progress, cancel, 0.0, "scoring")
+            output = adapter.score(frame)
+            step(progress, cancel, 0.5, "scoring")
+            response = adapter.response_from_output(output) if adapter.output_kind in (
+                "log-odds", "log of the mean", "probability", "value") else adapter.response(frame)
+            step(progress, cancel, 1.0, "scored")
+            return np.asarray(output, float), np.asarray(response, float)
+
+        return self._request(self.key("scores", slot, None), f"Scoring all rows with model {slot}",
+                             work, on_done, on_error, relevant)
+
+    # ---- attributions ------------------------------------------------------------------------
+    def _attribution_options(self) -> dict:
+        s = self.workspace.settings
+        return {"background": self.workspace.background_frame(), "background_size": s.background_size,
+                "seed": s.seed}
+
+    def sample_attributions(self, slot: str, state: FocusState, on_done, on_error=None, relevant=None):
+        """Attributions of a seeded sample of the segment (``Sampled``)."""
+        try:
+            adapter = self._need(slot)
+            explain = _engine_fn("attributions", "explain", "Attributions")
+        except NotAvailable as exc:
+            return self._fail(on_error, exc)
+        rows = self.sample_rows(state, SAMPLE_ROWS)
+        frame = self.workspace.frame.iloc[rows]
+        opts = self._attribution_options()
+
+        def work(progress, cancel):
+            result = call_engine(explain, adapter, frame, progress=progress, cancel=cancel, **opts)
+            return Sampled(rows, result)
+
+        s = self.workspace.settings
+        key = self.key("attributions", slot, state, rows=len(rows), bg=s.background_size, seed=s.seed)
+        return self._request(key, f"Attributions of {len(rows)} rows (model {slot})", work,
+                             on_done, on_error, relevant)
+
+    def case_attributions(self, slot: str, row_frame: pd.DataFrame, digest: str, on_done,
+                          on_error=None, relevant=None):
+        """Attributions of one row (its values as in the data, or trial values)."""
+        try:
+            adapter = self._need(slot)
+            explain = _engine_fn("attributions", "explain", "Contribution bars")
+        except NotAvailable as exc:
+            return self._fail(on_error, exc)
+        opts = self._attribution_options()
+
+        def work(progress, cancel):
+            return call_engine(explain, adapter, row_frame, progress=progress, cancel=cancel, **opts)
+
+        s = self.workspace.settings
+        key = self.key("case", slot, None, values=digest, bg=s.background_size, seed=s.seed)
+        return self._request(key, f"Contributions of one case (model {slot})", work, on_done,
+                             on_error, relevant)
+
+    # ---- ranking ---------------------------------------------------------------------------------
+    def associations(self, slot: str, state: FocusState, on_done, on_error=None, relevant=None):
+        """(Associations, Clustering) of the model's input columns over the segment."""
+        try:
+            adapter = self._need(slot)
+            assoc = _engine_fn("associations", "associations", "Feature association")
+            order = _engine_fn("associations", "cluster_order", "Feature association")
+        except NotAvailable as exc:
+            return self._fail(on_error, exc)
+        rows = self.sample_rows(state, IMPORTANCE_ROWS)
+        frame = self.workspace.frame.iloc[rows]
+        columns = list(adapter.input_columns)
+
+        def work(progress, cancel):
+            result = call_engine(assoc, frame, columns=columns, progress=progress, cancel=cancel)
+            clustering = call_engine(order, result.strength, result.features)
+            return result, clustering
+
+        key = self.key("associations", slot, state, rows=len(rows), columns=tuple(columns))
+        return self._request(key, "Feature association", work, on_done, on_error, relevant)
+
+    def importance(self, slot: str, state: FocusState, groups, on_done, on_error=None, relevant=None):
+        try:
+            adapter = self._need(slot)
+            permutation_importance = _engine_fn("importance", "permutation_importance",
+                                                "Permutation importance")
+        except NotAvailable as exc:
+            return self._fail(on_error, exc)
+        y_all = self.workspace.labels(slot)
+        if y_all is None:
+            return self._fail(on_error, NotAvailable(
+                "Permutation importance needs the actual outcome: choose the target in the settings"))
+        rows = self.sample_rows(state, IMPORTANCE_ROWS)
+        known = y_all.iloc[rows].notna().to_numpy()
+        rows = rows[known]
+        frame = self.workspace.frame.iloc[rows]
+        y = y_all.iloc[rows]
+        seed = self.workspace.settings.seed
+        groups = [list(g) for g in groups] if groups else None
+
+        def work(progress, cancel):
+            return Sampled(rows, call_engine(permutation_importance, adapter, frame, y, repeats=5,
+                                             seed=seed, groups=groups, progress=progress,
+                                             cancel=cancel))
+
+        key = self.key("importance", slot, state, rows=len(rows), seed=seed,
+                       groups=tuple(map(tuple, groups or ())),
+                       target=self.workspace.settings.target)
+        return self._request(key, f"Permutation importance (model {slot})", work, on_done,
+                             on_error, relevant)
+
+    # ---- effects ------------------------------------------------------------------------------------
+    def _effect_frame(self, state: FocusState) -> tuple[np.ndarray, pd.DataFrame]:
+        rows = self.sample_rows(state, EFFECT_ROWS)
+        return rows, self.workspace.frame.iloc[rows]
+
+    def partial_dependence(self, slot, state, feature, on_done, on_error=None, relevant=None):
+        try:
+            adapter = self._need(slot)
+            fn = _engine_fn("effects", "partial_dependence", "Effect curve")
+        except NotAvailable as exc:
+            return self._fail(on_error, exc)
+        rows, frame = self._effect_frame(state)
+        seed = self.workspace.settings.seed
+
+        def work(progress, cancel):
+            return Sampled(rows, call_engine(fn, adapter, frame, feature, grid_size=20, ice_rows=200,
+                                             seed=seed, progress=progress, cancel=cancel))
+
+        key = self.key("pd", slot, state, feature=feature, rows=len(rows), seed=seed)
+        return self._request(key, f"Effect curve of {feature}", work, on_done, on_error, relevant)
+
+    def ale(self, slot, state, feature, on_done, on_error=None, relevant=None):
+        try:
+            adapter = self._need(slot)
+            fn = _engine_fn("effects", "accumulated_local_effects", "ALE curve")
+        except NotAvailable as exc:
+            return self._fail(on_error, exc)
+        rows, frame = self._effect_frame(state)
+
+        def work(progress, cancel):
+            return Sampled(rows, call_engine(fn, adapter, frame, feature, bins=20, progress=progress,
+                                             cancel=cancel))
+
+        key = self.key("ale", slot, state, feature=feature, rows=len(rows))
+        return self._request(key, f"ALE curve of {feature}", work, on_done, on_error, relevant)
+
+    def pair_map(self, slot, state, pair, on_done, on_error=None, relevant=None):
+        try:
+            adapter = self._need(slot)
+            fn = _engine_fn("effects", "pair_dependence", "Pair map")
+        except NotAvailable as exc:
+            return self._fail(on_error, exc)
+        rows, frame = self._effect_frame(state)
+        a, b = pair
+
+        def work(progress, cancel):
+            return Sampled(rows, call_engine(fn, adapter, frame, a, b, grid_size=12,
+                                             progress=progress, cancel=cancel))
+
+        key = self.key("pairmap", slot, state, pair=tuple(pair), rows=len(rows))
+        return self._request(key, f"Pair map of {a} and {b}", work, on_done, on_error, relevant)
+
+    # ---- pairs -------------------------------------------------------------------------------------
+    def interactions(self, slot, state, on_done, on_error=None, relevant=None):
+        try:
+            adapter = self._need(slot)
+            fn = _engine_fn("interactions", "h_statistics", "Interaction strength (H)")
+        except NotAvailable as exc:
+            return self._fail(on_error, exc)
+        rows, frame = self._effect_frame(state)
+        seed = self.workspace.settings.seed
+
+        def work(progress, cancel):
+            return Sampled(rows, call_engine(fn, adapter, frame, sample=300, screen=8, seed=seed,
+                                             progress=progress, cancel=cancel))
+
+        key = self.key("h", slot, state, rows=len(rows), seed=seed)
+        return self._request(key, f"Interaction strength H (model {slot})", work, on_done,
+                             on_error, relevant)
+
+    def shap_interactions(self, slot, state, on_done, on_error=None, relevant=None):
+        """Mean |SHAP interaction value| per pair, for tree models, when the engine offers it."""
+        try:
+            adapter = self._need(slot)
+            fn = None
+            for module, name in (("attributions", "interaction_strength"),
+                                 ("treeshap", "interaction_strength"),
+                                 ("attributions", "shap_interactions")):
+                part = engine_part(module)
+                fn = getattr(part, name, None) if part is not None else None
+                if fn is not None:
+                    break
+            if fn is None:
+                raise NotAvailable(f"SHAP interaction strength: {NOT_AVAILABLE} (for tree models, "
+                                   "once the engine's tree SHAP offers interaction values)")
+        except NotAvailable as exc:
+            return self._fail(on_error, exc)
+        rows = self.sample_rows(state, 300)
+        frame = self.workspace.frame.iloc[rows]
+        opts = self._attribution_options()
+
+        def work(progress, cancel):
+            return Sampled(rows, call_engine(fn, adapter, frame, progress=progress, cancel=cancel,
+                                             **opts))
+
+        key = self.key("shapint", slot, state, rows=len(rows))
+        return self._request(key, f"SHAP interaction strength (model {slot})", work, on_done,
+                             on_error, relevant)
