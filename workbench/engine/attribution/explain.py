@@ -11,6 +11,8 @@ conditions on the training data's split counts, which a validator cannot see or 
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import pandas as pd
 
@@ -71,6 +73,11 @@ def explain(
         if form == "path":
             raise InputError(f"the path-dependent form exists for tree methods only, not for {method!r}")
         result = run.agnostic(method)
+    worst = result.max_abs_residual
+    if worst > _tolerance(result.output):
+        note = (f"additivity residual up to {worst:.3g}: these values do not add up to the output, "
+                "so the method did not explain this model exactly")
+        result = replace(result, notes=(*result.notes, note))
     jobs.step(progress, cancel, 1.0, "attributions done")
     return result
 
