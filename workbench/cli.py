@@ -20,6 +20,9 @@ COMMANDS = [
     "demo",
     "info",
     "open",
+    "rank",
+    "effects",
+    "pairs",
 ]
 
 
