@@ -19,6 +19,7 @@ COMMANDS = [
     "gui",
     "demo",
     "info",
+    "case",
     "open",
     "rank",
     "effects",
