@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 import sys
 from pathlib import Path
 
@@ -103,5 +104,7 @@ def run_app(*, demo: bool = False, snapshot_dir: Path | None = None, model: Path
         for path in snapshot(window, snapshot_dir):
             print(path)
         window.close()
-        return 0
+        sys.stdout.flush()
+        # Skip interpreter teardown: PySide6 with pyqtgraph can crash while finalising.
+        os._exit(0)
     return app.exec()

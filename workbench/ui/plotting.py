@@ -48,16 +48,26 @@ class TitledPlot(QWidget):
         super().__init__(parent)
         self.plot_widget = pg.PlotWidget()
         self.plot: pg.PlotItem = self.plot_widget.getPlotItem()
+        # The title is a wrapping QLabel: pyqtgraph's own title would force the plot's minimum
+        # width to the title's length and clip the plot in narrow panes. Exports add it back.
+        self.title_label = QLabel("")
+        self.title_label.setWordWrap(True)
+        self.title_label.setObjectName("plot-title")
+        self.title_label.setStyleSheet("font-weight: bold; padding: 2px 6px;")
         self.hover = QLabel(" ")
         self.hover.setObjectName("hover")
         self.hover.setStyleSheet("color: #333; padding-left: 6px;")
+        self.hover.setMinimumWidth(10)
         self.hover.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(0, 0, 0, 0)
         layout.setSpacing(0)
+        layout.addWidget(self.title_label)
         layout.addWidget(self.plot_widget, 1)
         layout.addWidget(self.hover)
         self.plot.showGrid(x=True, y=True, alpha=0.15)
+        for side in ("left", "bottom"):
+            self.plot.getAxis(side).enableAutoSIPrefix(False)  # units stay as labelled
         self.set_text(title, x_label, y_label)
         self._hover_fn = None
         self._proxy = pg.SignalProxy(self.plot_widget.scene().sigMouseMoved, rateLimit=30,
@@ -66,7 +76,7 @@ class TitledPlot(QWidget):
 
     def set_text(self, title: str, x_label: str | None = None, y_label: str | None = None) -> None:
         self.title = title
-        self.plot.setTitle(title, size="10pt")
+        self.title_label.setText(title)
         if x_label is not None:
             self.plot.setLabel("bottom", x_label)
         if y_label is not None:
@@ -109,13 +119,20 @@ class TitledPlot(QWidget):
 
     def export(self, path: str | Path) -> Path:
         path = Path(path)
+        self.plot.setTitle(self.title, size="9pt")
+        try:
+            self._export(path)
+        finally:
+            self.plot.setTitle(None)
+        return path
+
+    def _export(self, path: Path) -> None:
         if path.suffix.lower() == ".svg":
             exporter = pg.exporters.SVGExporter(self.plot)
         else:
             exporter = pg.exporters.ImageExporter(self.plot)
             exporter.parameters()["width"] = max(int(self.plot.sceneBoundingRect().width()) * 2, 400)
         exporter.export(str(path))
-        return path
 
 
 def thin_indices(n: int, limit: int = MAX_SCATTER_POINTS, seed: int = 0) -> np.ndarray:
@@ -125,12 +142,19 @@ def thin_indices(n: int, limit: int = MAX_SCATTER_POINTS, seed: int = 0) -> np.n
     return np.sort(np.random.default_rng(seed).choice(n, size=limit, replace=False))
 
 
-def value_colours(values: np.ndarray, cmap: pg.ColorMap | None = None) -> list:
-    """Brushes for numeric values on the sequential map (missing values grey)."""
+def value_colours(values: np.ndarray, cmap: pg.ColorMap | None = None,
+                  limits: tuple[float, float] | None = None) -> list:
+    """Brushes for numeric values on a map (default sequential; missing values grey).
+
+    Without ``limits`` the 2nd to 98th percentiles span the map, so outliers do not wash it out.
+    """
     cmap = cmap or sequential_map()
     v = np.asarray(values, dtype=float)
     finite = np.isfinite(v)
-    lo, hi = (np.nanpercentile(v[finite], [2, 98]) if finite.any() else (0.0, 1.0))
+    if limits is not None:
+        lo, hi = limits
+    else:
+        lo, hi = (np.nanpercentile(v[finite], [2, 98]) if finite.any() else (0.0, 1.0))
     scaled = np.clip((v - lo) / (hi - lo if hi > lo else 1.0), 0, 1)
     table = cmap.getLookupTable(nPts=256, alpha=False)
     out = []

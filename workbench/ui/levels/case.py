@@ -332,6 +332,7 @@ class CaseLevel(Level):
     def _draw_bars(self, labels, values, adapter) -> None:
         plot = self.bars.plot
         plot.clear()
+        plot.enableAutoRange()
         n = len(values)
         ys = np.arange(n)
         brushes = [colour(RAISES if v > 0 else LOWERS, 235 if f else 130)
@@ -357,6 +358,7 @@ class CaseLevel(Level):
     def _draw_running(self, labels, values, base, adapter) -> None:
         plot = self.running.plot
         plot.clear()
+        plot.enableAutoRange()
         n = len(values)
         totals = base + np.cumsum(values)
         xs = np.concatenate([[base], totals])
@@ -371,9 +373,9 @@ class CaseLevel(Level):
                  (self.trial_output, "this case", "#000", pg.QtCore.Qt.PenStyle.SolidLine)]
         if cutoff_output is not None and np.isfinite(cutoff_output):
             marks.append((cutoff_output, "cutoff", "#6A3D9A", pg.QtCore.Qt.PenStyle.DotLine))
-        for x, text, col, style in marks:
+        for k, (x, text, col, style) in enumerate(marks):
             line = pg.InfiniteLine(x, angle=90, pen=pg.mkPen(col, width=1.5, style=style),
-                                   label=text, labelOpts={"position": 0.04, "color": col,
+                                   label=text, labelOpts={"position": 0.03 + 0.06 * k, "color": col,
                                                           "fill": (255, 255, 255, 220)})
             plot.addItem(line)
         lo = min(xs.min(), *(m[0] for m in marks))

@@ -1,0 +1,208 @@
+"""Ranking: every feature's permutation importance (with its spread over repeats) beside its mean
+absolute attribution, and the importance of blocks of associated features permuted together."""
+
+from __future__ import annotations
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtWidgets import QHBoxLayout, QLabel, QVBoxLayout, QWidget
+
+from workbench.ui.levels.base import Level, register_level
+from workbench.ui.plotting import CURVE, SECOND, TitledPlot, colour, message_item
+
+
+def _horizontal_bars(plot, values, labels, brush, errors=None) -> None:
+    plot.clear()
+    plot.enableAutoRange()
+    n = len(values)
+    ys = np.arange(n)
+    values = np.nan_to_num(np.asarray(values, float))
+    plot.addItem(pg.BarGraphItem(x0=np.minimum(values, 0), width=np.abs(values), y=ys, height=0.66,
+                                 brush=brush, pen=pg.mkPen(None)))
+    if errors is not None:
+        plot.addItem(pg.ErrorBarItem(x=values, y=ys, left=np.asarray(errors), right=np.asarray(errors),
+                                     beam=0.25, pen=pg.mkPen("#222", width=1.2)))
+    plot.getAxis("left").setTicks([list(zip(ys, labels, strict=True))])
+    plot.setYRange(-0.6, n - 0.4, padding=0)
+    hi = float(np.nanmax(values + (np.asarray(errors) if errors is not None else 0))) if n else 1.0
+    lo = float(np.nanmin(np.minimum(values, 0))) if n else 0.0
+    plot.setXRange(lo - 0.02 * (hi - lo or 1), hi * 1.08 if hi > 0 else 1.0, padding=0)
+
+
+@register_level
+class RankingLevel(Level):
+    name, order = "Ranking", 40
+    summary = "Every feature: permutation importance, mean absolute attribution, grouped importance"
+
+    def __init__(self, ctx, parent=None) -> None:
+        super().__init__(ctx, parent)
+        self.heading = QLabel("<b>Ranking</b>")
+        self.importance_plot = TitledPlot("Permutation importance", "", "")
+        self.attribution_plot = TitledPlot("Mean absolute attribution", "", "")
+        self.group_plot = TitledPlot("Blocks of associated features permuted together", "", "")
+        for p in (self.importance_plot, self.attribution_plot, self.group_plot):
+            p.plot.invertY(True)
+        self.attribution_plot.plot.setYLink(self.importance_plot.plot)
+        self.attribution_plot.plot.getAxis("left").setStyle(showValues=False)
+        self.attribution_plot.plot.getAxis("left").setWidth(8)
+        plots = QHBoxLayout()
+        plots.addWidget(self.importance_plot, 3)
+        plots.addWidget(self.attribution_plot, 2)
+        self.note = QLabel("Click a bar to open that feature's Effect. Error bars: ± one standard "
+                           "deviation over the permutation repeats.")
+        self.note.setStyleSheet("color: #555;")
+        self.note.setWordWrap(True)
+        layout = QVBoxLayout(self)
+        layout.addWidget(self.heading)
+        top = QWidget()
+        top.setLayout(plots)
+        layout.addWidget(top, 3)
+        layout.addWidget(self.group_plot, 1)
+        layout.addWidget(self.note)
+        self.order: list[str] = []
+        self.importance = None
+        self.attributions = None
+        self.groups: list[list[str]] = []
+        for p in (self.importance_plot, self.attribution_plot):
+            p.plot_widget.scene().sigMouseClicked.connect(lambda ev, p=p: self._clicked(p, ev))
+            p.on_hover(self._hover)
+        self.group_plot.on_hover(self._hover_group)
+
+    def view_key(self) -> tuple:
+        s = self.state
+        return (self.ctx.workspace.generation, s.model, s.segment)
+
+    def render(self) -> None:
+        ws, s = self.ctx.workspace, self.state
+        self.importance = self.attributions = None
+        self.order, self.groups = [], []
+        slot = ws.slot(s.model)
+        self.heading.setText(f"<b>Ranking</b> — model {s.model}" + (f" ({slot.name})" if slot else "")
+                             + f", {len(self.ctx.results.segment_rows(s)) if ws.frame is not None else 0:,} rows in the segment")
+        for p, text in ((self.importance_plot, "Computing permutation importance…"),
+                        (self.attribution_plot, "Computing attributions…"),
+                        (self.group_plot, "Computing feature association…")):
+            message_item(p.plot, text)
+        relevant = self.relevant()
+        self.ctx.results.sample_attributions(s.model, s, self._attributions_arrived,
+                                             lambda e: self._failed(self.attribution_plot, e), relevant)
+        self.ctx.results.associations(s.model, s, self._associations_arrived,
+                                      self._associations_failed, relevant)
+
+    # ---- arrivals -------------------------------------------------------------------------------
+    def _failed(self, titled: TitledPlot, exc) -> None:
+        message_item(titled.plot, str(exc))
+
+    def _associations_arrived(self, result) -> None:
+        _assoc, clustering = result
+        self.groups = [list(b) for b in clustering.blocks]
+        self.ctx.results.importance(self.state.model, self.state, self.groups,
+                                    self._importance_arrived,
+                                    lambda e: (self._failed(self.importance_plot, e),
+                                               self._failed(self.group_plot, e)),
+                                    self.relevant())
+
+    def _associations_failed(self, exc) -> None:
+        self._failed(self.group_plot, exc)
+        self.ctx.results.importance(self.state.model, self.state, [], self._importance_arrived,
+                                    lambda e: self._failed(self.importance_plot, e), self.relevant())
+
+    def _importance_arrived(self, sampled) -> None:
+        self.importance = sampled.result
+        self._draw()
+
+    def _attributions_arrived(self, sampled) -> None:
+        self.attributions = sampled.result
+        self._draw()
+
+    # ---- drawing ------------------------------------------------------------------------------
+    def _draw(self) -> None:
+        adapter = self.ctx.workspace.adapter(self.state.model)
+        imp, att = self.importance, self.attributions
+        if imp is not None:
+            features = list(imp.features)
+            order = [features[i] for i in np.argsort(-np.nan_to_num(imp.mean, nan=-np.inf), kind="stable")]
+        elif att is not None:
+            mean_abs = np.abs(att.values).mean(axis=0)
+            order = [att.features[i] for i in np.argsort(-mean_abs, kind="stable")]
+        else:
+            return
+        self.order = order
+        if imp is not None:
+            pos = {f: i for i, f in enumerate(imp.features)}
+            means = np.array([imp.mean[pos[f]] for f in order])
+            spreads = np.array([imp.spread[pos[f]] for f in order])
+            _horizontal_bars(self.importance_plot.plot, means, order, colour(CURVE, 220), spreads)
+            change = "drop" if imp.greater_is_better else "rise"
+            self.importance_plot.set_text(
+                f"Permutation importance: {change} in {imp.metric} when a feature is shuffled "
+                f"({imp.repeats} repeats, {imp.rows_used:,} rows)",
+                f"{change} in {imp.metric} (baseline {imp.baseline:.4g})", None)
+            self._draw_groups(imp)
+        if att is not None:
+            pos = {f: i for i, f in enumerate(att.features)}
+            mean_abs = np.abs(att.values).mean(axis=0)
+            values = np.array([mean_abs[pos[f]] if f in pos else np.nan for f in order])
+            _horizontal_bars(self.attribution_plot.plot, values,
+                             order if imp is None else [""] * len(order), colour(SECOND, 220))
+            self.attribution_plot.set_text(
+                f"Mean absolute attribution ({att.method}, {att.n_rows:,} rows)",
+                f"mean |contribution| ({adapter.output_units if adapter else ''})", None)
+            if imp is None:
+                self.attribution_plot.plot.getAxis("left").setStyle(showValues=True)
+
+    def _draw_groups(self, imp) -> None:
+        groups = list(getattr(imp, "groups", []) or [])
+        if not groups:
+            message_item(self.group_plot.plot, "No blocks of associated features (association ≥ 0.5)"
+                         if self.groups == [] else "No grouped importance in this result")
+            self.group_labels = []
+            return
+        labels = [" + ".join(g.features) for g in groups]
+        self.group_labels = labels
+        self.group_values = [(g.mean, g.spread) for g in groups]
+        _horizontal_bars(self.group_plot.plot, [g.mean for g in groups], labels, colour(CURVE, 160),
+                         [g.spread for g in groups])
+        self.group_plot.set_text("Blocks of associated features permuted together "
+                                 "(their shared importance, which single permutations split)",
+                                 f"drop in {imp.metric}" if imp.greater_is_better else f"rise in {imp.metric}",
+                                 None)
+
+    # ---- hover and clicks -------------------------------------------------------------------------
+    def _index(self, y: float) -> int | None:
+        i = int(round(y))
+        return i if 0 <= i < len(self.order) else None
+
+    def _hover(self, x: float, y: float) -> str | None:
+        i = self._index(y)
+        if i is None:
+            return None
+        f = self.order[i]
+        parts = [f]
+        if self.importance is not None:
+            j = list(self.importance.features).index(f)
+            parts.append(f"importance {self.importance.mean[j]:.4g} ± {self.importance.spread[j]:.2g}")
+        if self.attributions is not None and f in self.attributions.features:
+            j = list(self.attributions.features).index(f)
+            parts.append(f"mean |attribution| {np.abs(self.attributions.values[:, j]).mean():.4g}")
+        return " · ".join(parts)
+
+    def _hover_group(self, x: float, y: float) -> str | None:
+        labels = getattr(self, "group_labels", [])
+        i = int(round(y))
+        if not 0 <= i < len(labels):
+            return None
+        mean, spread = self.group_values[i]
+        return f"{labels[i]}: {mean:.4g} ± {spread:.2g}"
+
+    def _clicked(self, titled: TitledPlot, event) -> None:
+        point = titled.plot.vb.mapSceneToView(event.scenePos())
+        self.click_bar_at(point.y())
+
+    def click_bar_at(self, y: float) -> None:
+        i = self._index(y)
+        if i is not None:
+            self.open_effect(self.order[i])
+
+    def open_effect(self, feature: str) -> None:
+        self.go(feature=feature, level="Effect")
