@@ -530,7 +530,10 @@ def compare_versions(adapter_a: ModelAdapter, adapter_b: ModelAdapter, frame: pd
                      "which needs positive predictions")
     else:
         actual = metric_target if task == "count" else target.astype(float)
-        lift = double_lift(actual, response_a, response_b, bands=bands, weight=w)
+        if int(bands) > n:
+            notes.append(f"the double lift chart has {n} bands, one per row (fewer rows than "
+                         f"the {int(bands)} bands asked for)")
+        lift = double_lift(actual, response_a, response_b, bands=min(int(bands), n), weight=w)
     jobs.step(progress, cancel, 1.0, "comparison done")
     return Comparison(
         task=task, units=report.response_units, n=n, compatibility=report,
