@@ -171,7 +171,7 @@ def _labels(adapter: ModelAdapter, y, n: int) -> np.ndarray:
                              f"{adapter.classes}, for example {series[unknown].iloc[0]!r}")
         if adapter.task == "binary":
             return (series == adapter.positive_class).to_numpy(dtype=int)
-        return series.to_numpy(dtype=object)
+        return np.asarray(series.tolist())  # natural dtype: sklearn cannot type object labels
     return series.to_numpy(dtype=float)
 
 
@@ -211,7 +211,7 @@ class _SortedBinary:
 def _weighted_figures(task: str, y, response, w: np.ndarray, classes) -> dict[str, float]:
     """The compared figures of one model with row weights ``w`` (sklearn, scipy)."""
     if task == "multiclass":
-        labels = np.asarray(classes, dtype=object)
+        labels = np.asarray(classes)
         keep = w > 0
         yk, pk, wk = y[keep], response[keep], w[keep]
         if np.unique(yk).size < 2:
@@ -509,6 +509,9 @@ def compare_versions(adapter_a: ModelAdapter, adapter_b: ModelAdapter, frame: pd
     # ranking shift: same rows and the same shuffles for both models (same seed)
     imp_kwargs = dict(repeats=int(importance_repeats), seed=seed,
                       max_rows=int(importance_rows) if importance_rows else None)
+    if multiclass:
+        # macro AUC: importance's log loss path hands sklearn object-dtype labels it refuses
+        imp_kwargs["metric"] = "auc"
     if task == "count":
         imp_kwargs["exposure"] = w
     else:
