@@ -9,6 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from workbench.commands.case_why import add_why_arguments, extend_payload, print_why
 from workbench.commands.common import (
     add_data_arguments,
     add_json,
@@ -43,6 +44,7 @@ def register(sub) -> None:
     p.add_argument("--seed", type=int, default=0, help="seed of the background draw and of sampling")
     p.add_argument("--permutations", type=int, default=None,
                    help="orders of columns for the sampling method (default 64)")
+    add_why_arguments(p)
     add_trust(p)
     add_json(p)
     p.set_defaults(run=run)
@@ -73,10 +75,13 @@ def run(args) -> int:
     payload = case_payload(adapter, data, row, attributions)
     payload["model"] = {"file": str(loaded.path), "sha256": loaded.sha256}
     payload["data"] = {"file": str(data.path), "sha256": data.sha256}
+    extend_payload(args, payload, adapter=adapter, loaded=loaded, data=data, row=row,
+                   attributions=attributions, background_size=size)
     if args.json:
         print_json(payload)
     else:
         print_case(payload)
+        print_why(payload)
     return 0
 
 
@@ -128,6 +133,14 @@ def case_payload(adapter, data: Dataset | pd.DataFrame, row: int, attributions: 
     return payload
 
 
+def _shown(value) -> str:
+    if value is None:
+        return "(missing)"
+    if isinstance(value, float):
+        return f"{value:.10g}"
+    return str(value)
+
+
 def print_case(p: dict) -> None:
     pred = p["prediction"]
     who = f"row {p['row']}" + (f" (id {p['id']})" if "id" in p else "")
@@ -144,8 +157,8 @@ def print_case(p: dict) -> None:
     print(f"base value  {p['base_value']:.6g}  ({where})")
     print(f"method      {p['method']} ({p['form']})")
     print()
-    rows = [{"feature": a["feature"], "value": "" if a["value"] is None else a["value"],
-             "contribution": a["contribution"]} for a in p["attributions"]]
+    rows = [{"feature": a["feature"], "value": _shown(a["value"]), "contribution": a["contribution"]}
+            for a in p["attributions"]]
     print_table(rows, ["feature", "value", "contribution"])
     total = sum(a["contribution"] for a in p["attributions"])
     print()
