@@ -24,6 +24,9 @@ COMMANDS = [
     "rank",
     "effects",
     "pairs",
+    "compare",
+    "audit",
+    "dossier",
 ]
 
 
