@@ -30,7 +30,8 @@ def select_background(frame: pd.DataFrame, size: int | str = 100, *, seed: int =
         raise InputError(f"background size must be a whole number of rows of at least 1, not {size!r}")
     size = int(size)
     if size > n:
-        raise InputError(f"a background of {size} rows was asked for, but the data has only {n} rows")
+        rows = "row" if n == 1 else "rows"
+        raise InputError(f"a background of {size} rows was asked for, but the data has only {n} {rows}")
     if size == n:
         return frame
     picked = jobs.rng(seed).choice(n, size=size, replace=False)
