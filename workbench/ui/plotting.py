@@ -128,11 +128,35 @@ class TitledPlot(QWidget):
 
     def _export(self, path: Path) -> None:
         if path.suffix.lower() == ".svg":
-            exporter = pg.exporters.SVGExporter(self.plot)
+            try:
+                pg.exporters.SVGExporter(self.plot).export(str(path))
+            except ValueError:
+                # pyqtgraph 0.14's SVG path rewriting fails on some Qt 6 path strings;
+                # draw the same scene region through Qt's own SVG generator instead.
+                self._export_svg_qt(path)
+            return
         else:
             exporter = pg.exporters.ImageExporter(self.plot)
             exporter.parameters()["width"] = max(int(self.plot.sceneBoundingRect().width()) * 2, 400)
         exporter.export(str(path))
+
+
+    def _export_svg_qt(self, path: Path) -> None:
+        from PySide6.QtCore import QRectF, QSize
+        from PySide6.QtGui import QPainter
+        from PySide6.QtSvg import QSvgGenerator
+
+        rect = self.plot.sceneBoundingRect()
+        generator = QSvgGenerator()
+        generator.setFileName(str(path))
+        generator.setSize(QSize(int(rect.width()), int(rect.height())))
+        generator.setViewBox(QRectF(0, 0, rect.width(), rect.height()))
+        generator.setTitle(self.title)
+        painter = QPainter(generator)
+        try:
+            self.plot_widget.scene().render(painter, QRectF(0, 0, rect.width(), rect.height()), rect)
+        finally:
+            painter.end()
 
 
 def thin_indices(n: int, limit: int = MAX_SCATTER_POINTS, seed: int = 0) -> np.ndarray:

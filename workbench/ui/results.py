@@ -25,6 +25,8 @@ from workbench.ui.workspace import Workspace
 SAMPLE_ROWS = 1000  # rows explained for the attribution scatter and mean |attribution|
 EFFECT_ROWS = 2000  # rows behind effect curves, ALE and pair maps
 IMPORTANCE_ROWS = 5000  # rows permuted for permutation importance
+H_SAMPLE = 300  # rows behind the H-statistics (their cost grows with the square of this)
+H_SCREEN = 8  # pairwise H among this many features with the strongest overall H
 NOT_AVAILABLE = "not available yet"
 
 
@@ -300,10 +302,10 @@ class Results:
         seed = self.workspace.settings.seed
 
         def work(progress, cancel):
-            return Sampled(rows, call_engine(fn, adapter, frame, sample=300, screen=8, seed=seed,
+            return Sampled(rows, call_engine(fn, adapter, frame, sample=H_SAMPLE, screen=H_SCREEN, seed=seed,
                                              progress=progress, cancel=cancel))
 
-        key = self.key("h", slot, state, rows=len(rows), seed=seed)
+        key = self.key("h", slot, state, rows=len(rows), seed=seed, sample=H_SAMPLE)
         return self._request(key, f"Interaction strength H (model {slot})", work, on_done,
                              on_error, relevant)
 
