@@ -200,6 +200,7 @@ class VersionsLevel(Level):
         self.bars_diff = TitledPlot("Difference B − A", "", "")
         for p in (self.bars_a, self.bars_b, self.bars_diff):
             p.plot.invertY(True)
+            p.title_label.setFixedHeight(24)  # equal heights keep the linked bars in line
         for p in (self.bars_b, self.bars_diff):
             p.plot.setYLink(self.bars_a.plot)
             p.plot.getAxis("left").setStyle(showValues=False)
@@ -310,9 +311,9 @@ class VersionsLevel(Level):
         key = ("versions", a.sha256, b.sha256, ws.data_key(), s.segment,
                repr(ws.settings.positive_class), ws.settings.target, cut_a, cut_b, seed,
                RESAMPLES, IMPORTANCE_ROWS, len(rows))
+        self._fill_features(adapter_a, adapter_b)  # before the request: it may answer at once
         self.ctx.runner.request(key, "Champion against challenger", work, self._arrived,
                                 on_error=self._failed, relevant=self.relevant())
-        self._fill_features(adapter_a, adapter_b)
 
     def _failed(self, exc) -> None:
         self._clear(f"The models could not be compared: {exc}")
@@ -481,17 +482,21 @@ class VersionsLevel(Level):
         self.case_features = [features[j] for j in order]
         self.case_values = (va[order], vb[order])
         span = float(np.max(np.abs(np.concatenate([va[order], vb[order]])))) or 1.0
-        for titled, values, att, adapter, slot in ((self.bars_a, va[order], att_a, adapter_a, "A"),
-                                                   (self.bars_b, vb[order], att_b, adapter_b, "B")):
+        for titled, values, adapter, slot in ((self.bars_a, va[order], adapter_a, "A"),
+                                              (self.bars_b, vb[order], adapter_b, "B")):
             self._draw_bars(titled.plot, values, labels if slot == "A" else None, span)
-            titled.set_text(f"Contribution bars under {slot} (base value {att.base_value:.3g}, "
-                            f"output {float(np.ravel(att.output)[0]):.3g}; {att.method})",
-                            f"contribution to the {adapter.output_units}", None)
+            titled.set_text(f"Contribution bars under {slot}",
+                            f"contribution ({adapter.output_units})", None)
+        self.case_heading.setText(
+            self.case_heading.text().split("<br>")[0] + "<br>"
+            + "; ".join(f"{slot}: base value {att.base_value:.3g}, output "
+                        f"{float(np.ravel(att.output)[0]):.3g} ({att.method})"
+                        for slot, att in (("A", att_a), ("B", att_b)))
+            + ". The same scale for both; a feature a model does not use counts 0.")
         if adapter_a.output_kind == adapter_b.output_kind:
             diff = vb[order] - va[order]
             self._draw_bars(self.bars_diff.plot, diff, None, float(np.max(np.abs(diff))) or 1.0)
-            self.bars_diff.set_text("Difference B − A per feature (a feature a model does not "
-                                    "use counts 0)", f"B − A ({adapter_a.output_units})", None)
+            self.bars_diff.set_text("Difference B − A", f"B − A ({adapter_a.output_units})", None)
         else:
             message_item(self.bars_diff.plot, "The two models explain different outputs "
                          f"({adapter_a.output_kind} and {adapter_b.output_kind}): no difference")
