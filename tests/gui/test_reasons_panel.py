@@ -1,0 +1,75 @@
+"""The reasons panel shows what the engine returns and hands flips and rows back by signal."""
+
+import numpy as np
+import pandas as pd
+import pytest
+from PySide6.QtCore import Qt
+from sklearn.linear_model import LogisticRegression
+
+from workbench.engine.adapter import ModelAdapter
+from workbench.engine.attributions import explain
+from workbench.engine.reasons import FeatureWording, ReasonTemplates
+from workbench.report.render import CAUTIONS
+from workbench.ui.reasons_panel import CaseInputs, ReasonsPanel
+
+
+@pytest.fixture
+def case():
+    rng = np.random.default_rng(0)
+    n = 300
+    x = pd.DataFrame({"debt_ratio": rng.uniform(0, 1, n).round(3),
+                      "income": rng.normal(40, 8, n).round(1),
+                      "late": rng.integers(0, 5, n)})
+    y = pd.Series((x["debt_ratio"] * 4 - (x["income"] - 40) / 10 + x["late"] * 0.5
+                   + rng.normal(0, 0.5, n) > 2.5).astype(int))
+    adapter = ModelAdapter(LogisticRegression(max_iter=1000).fit(x, y))
+    r = adapter.response(x)
+    row = int(np.flatnonzero((r >= 0.5) & (r < 0.8))[0])
+    att = explain(adapter, x.iloc[[row]], background=x, background_size=50)
+    templates = ReasonTemplates({"debt_ratio": FeatureWording("<b>Debt</b> ratio")})
+    return CaseInputs(adapter, x.iloc[[row]], att, x, 0.5, row=row, templates=templates,
+                      background_size=50, labels=y, key=("test", row))
+
+
+def test_panel_shows_reasons_flips_similar_and_cautions(qtbot, case):
+    panel = ReasonsPanel()
+    qtbot.addWidget(panel)
+    panel.set_case(case, actionable=["debt_ratio", "late"])
+    assert "adverse side" in panel.message.text()
+    texts = [panel.reason_table.item(i, 1).text() for i in range(panel.reason_table.rowCount())]
+    assert texts == panel.reasons.texts and 1 <= len(texts) <= 4
+    assert any("<b>Debt</b> ratio" in t for t in texts)  # shown as typed, never as markup
+    assert panel.cautions.text() == " ".join(CAUTIONS)
+    assert panel.similar_table.rowCount() == 5
+
+    panel.find_flips()
+    assert panel.flips is not None and panel.flips.found
+    assert panel.flip_table.rowCount() == len(panel.flips.options)
+    with qtbot.waitSignal(panel.trial_requested) as signal:
+        panel.flip_table.cellClicked.emit(0, 1)
+    trial = case.values_row.copy()
+    for feature, value in signal.args[0].items():
+        assert feature in ("debt_ratio", "late")
+        trial[feature] = value
+    assert case.adapter.response(trial)[0] < 0.5
+
+    with qtbot.waitSignal(panel.row_requested) as signal:
+        panel.similar_table.cellClicked.emit(1, 0)
+    assert signal.args[0] == panel.similar[1].row != case.row
+
+    panel.check_stability()
+    assert panel.stability is not None
+    marks = {panel.reason_table.item(i, 2).text() for i in range(panel.reason_table.rowCount())}
+    assert marks <= {"yes", "not stable"}
+
+
+def test_flip_without_actionable_features_says_so(qtbot, case):
+    panel = ReasonsPanel()
+    qtbot.addWidget(panel)
+    panel.set_case(case)
+    panel.find_flips()
+    assert "Tick at least one feature" in panel.flip_message.text()
+    item = panel.actionable.item(0)
+    item.setCheckState(Qt.CheckState.Checked)
+    panel.find_flips()
+    assert panel.flips is not None

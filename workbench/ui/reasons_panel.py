@@ -1,0 +1,379 @@
+"""Why this decision: reason statements, their stability, nearest flips and similar rows of one case.
+
+A self-contained widget for the Case level. It computes nothing itself: every number comes
+from ``workbench.engine.reasons``, ``explanation_stability``, ``flips`` and ``similar``; the
+longer ones (nearest flip, stability, similar rows over the whole data) run as jobs on the
+window's :class:`~workbench.ui.jobs.JobRunner` when one is given, in the calling thread
+otherwise. Clicking a flip option emits :attr:`ReasonsPanel.trial_requested` with its values;
+clicking a similar row emits :attr:`ReasonsPanel.row_requested` with its position.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtWidgets import (
+    QAbstractItemView,
+    QHBoxLayout,
+    QHeaderView,
+    QLabel,
+    QListWidget,
+    QListWidgetItem,
+    QPushButton,
+    QSpinBox,
+    QTableWidget,
+    QTableWidgetItem,
+    QVBoxLayout,
+    QWidget,
+)
+
+from workbench.engine.errors import InputError
+from workbench.engine.explanation_stability import reason_stability
+from workbench.engine.flips import nearest_flips
+from workbench.engine.reasons import ReasonTemplates, reason_statements
+from workbench.engine.similar import similar_rows, similar_summary
+from workbench.report.render import CAUTIONS
+
+NOTE = "color: #555;"
+FLAG = "background: #FFF3E0; padding: 4px; border: 1px solid #E0A060;"
+CAUTION = "background: #FFF8E1; padding: 6px; border: 1px solid #E0C070;"
+
+
+@dataclass
+class CaseInputs:
+    """What the panel needs to know about the case it shows."""
+
+    adapter: object
+    values_row: pd.DataFrame
+    attributions: object
+    data: pd.DataFrame
+    cutoff: float
+    row: int | None = None
+    adverse_if: str = "above"
+    background: pd.DataFrame | None = None
+    background_size: int = 100
+    seed: int = 0
+    templates: ReasonTemplates = field(default_factory=ReasonTemplates)
+    not_allowed: tuple[str, ...] = ()
+    labels: object = None
+    key: tuple = ()
+
+
+def _table(headers: list[str]) -> QTableWidget:
+    table = QTableWidget(0, len(headers))
+    table.setHorizontalHeaderLabels(headers)
+    table.verticalHeader().setVisible(False)
+    table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+    table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+    table.setWordWrap(True)
+    header = table.horizontalHeader()
+    header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+    header.setStretchLastSection(True)
+    return table
+
+
+def _cell(text) -> QTableWidgetItem:
+    item = QTableWidgetItem(str(text))
+    item.setFlags(item.flags() & ~Qt.ItemFlag.ItemIsEditable)
+    return item
+
+
+def _label(text: str = "", style: str = "") -> QLabel:
+    label = QLabel(text)
+    label.setWordWrap(True)
+    label.setTextFormat(Qt.TextFormat.PlainText)  # user text (display names) is never markup
+    label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+    if style:
+        label.setStyleSheet(style)
+    return label
+
+
+class ReasonsPanel(QWidget):
+    """Reason statements (with stability marks), nearest flips and similar rows of one case."""
+
+    trial_requested = Signal(dict)  # feature -> value of a flip option, to load as trial values
+    row_requested = Signal(int)  # a similar row's position in the data
+
+    def __init__(self, runner=None, parent=None) -> None:
+        super().__init__(parent)
+        self.runner = runner
+        self.case: CaseInputs | None = None
+        self.reasons = None
+        self.stability = None
+        self.flips = None
+        self.similar: list = []
+
+        self.message = _label()
+        self.reason_table = _table(["rank", "reason statement", "stable"])
+        self.flag_label = _label(style=FLAG)
+        self.flag_label.hide()
+        self.stability_button = QPushButton("Check the reasons against other background samples")
+        self.stability_note = _label(style=NOTE)
+
+        self.actionable = QListWidget()
+        self.actionable.setMaximumHeight(110)
+        self.actionable.setToolTip("Tick the features the applicant could change")
+        self.max_changes = QSpinBox()
+        self.max_changes.setRange(1, 3)
+        self.max_changes.setValue(3)
+        self.max_changes.setPrefix("at most ")
+        self.max_changes.setSuffix(" changes")
+        self.flip_button = QPushButton("Find the nearest flip")
+        self.flip_message = _label(style=NOTE)
+        self.flip_table = _table(["option", "changes", "new score", "distance"])
+        self.flip_note = _label("Click an option to load it as trial values.", NOTE)
+
+        self.similar_message = _label(style=NOTE)
+        self.similar_table = _table(["row", "Gower distance", "score", "label"])
+        self.similar_note = _label("Click a row to open it as the case.", NOTE)
+        self.cautions = _label(" ".join(CAUTIONS), CAUTION)
+
+        flip_controls = QHBoxLayout()
+        flip_controls.addWidget(self.max_changes)
+        flip_controls.addWidget(self.flip_button, 1)
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(0, 0, 0, 0)
+        for widget in (QLabel("<b>Reason statements</b>"), self.message, self.reason_table,
+                       self.flag_label, self.stability_button, self.stability_note,
+                       QLabel("<b>Nearest flip</b> — actionable features:"), self.actionable):
+            layout.addWidget(widget)
+        layout.addLayout(flip_controls)
+        for widget in (self.flip_message, self.flip_table, self.flip_note,
+                       QLabel("<b>Similar rows</b>"), self.similar_message, self.similar_table,
+                       self.similar_note, self.cautions):
+            layout.addWidget(widget)
+
+        self.flip_button.clicked.connect(self.find_flips)
+        self.stability_button.clicked.connect(self.check_stability)
+        self.flip_table.cellClicked.connect(self._flip_clicked)
+        self.similar_table.cellClicked.connect(self._similar_clicked)
+        self.clear("No case chosen.")
+
+    # ---- showing a case ------------------------------------------------------------------------
+    def clear(self, message: str) -> None:
+        self.case, self.reasons, self.stability, self.flips, self.similar = None, None, None, None, []
+        self.message.setText(message)
+        self.reason_table.setRowCount(0)
+        self.flip_table.setRowCount(0)
+        self.similar_table.setRowCount(0)
+        self.flag_label.hide()
+        self.flip_message.setText("")
+        self.stability_note.setText("")
+        self.similar_message.setText("")
+
+    def set_case(self, case: CaseInputs, *, actionable=None) -> None:
+        """Show the reasons of ``case`` now; similar rows follow (a job over the whole data)."""
+        previous = self._ticked() if self.case is not None else None
+        self.case, self.stability, self.flips, self.similar = case, None, None, []
+        try:
+            self.reasons = reason_statements(
+                case.attributions, case.values_row, adapter=case.adapter, cutoff=case.cutoff,
+                adverse_if=case.adverse_if, templates=case.templates, not_allowed=case.not_allowed,
+                on_request=True)
+        except InputError as exc:
+            self.reasons = None
+            self.message.setText(str(exc))
+        self._show_reasons()
+        self._fill_actionable(actionable if actionable is not None else previous)
+        self.flip_table.setRowCount(0)
+        self.flip_message.setText("Tick the actionable features and press the button.")
+        self.stability_note.setText("")
+        self._request_similar()
+
+    def _show_reasons(self) -> None:
+        result, table = self.reasons, self.reason_table
+        table.setRowCount(0)
+        self.flag_label.hide()
+        if result is None:
+            return
+        text = result.message
+        if not result.adverse and result.reasons:
+            text += " Shown for information: no reasons are due for a favourable decision."
+        self.message.setText(text)
+        unstable = set(self.stability.unstable) if self.stability is not None else set()
+        table.setRowCount(len(result.reasons))
+        for i, reason in enumerate(result.reasons):
+            table.setItem(i, 0, _cell(reason.rank))
+            table.setItem(i, 1, _cell(reason.text))
+            mark = "—" if self.stability is None else ("not stable" if reason.feature in unstable else "yes")
+            table.setItem(i, 2, _cell(mark))
+        table.resizeRowsToContents()
+        if result.flagged_not_allowed:
+            self.flag_label.setText("For the analyst, not for the applicant: "
+                                    + " ".join(f.text for f in result.flagged_not_allowed))
+            self.flag_label.show()
+
+    def _fill_actionable(self, ticked) -> None:
+        case = self.case
+        ticked = set(ticked or ())
+        self.actionable.clear()
+        for f in case.adapter.input_columns:
+            item = QListWidgetItem(case.templates.wording(f).display_name)
+            item.setData(Qt.ItemDataRole.UserRole, f)
+            blocked = f in case.not_allowed
+            flags = item.flags() | Qt.ItemFlag.ItemIsUserCheckable
+            if blocked:
+                flags &= ~Qt.ItemFlag.ItemIsEnabled
+                item.setToolTip("marked not allowed: a flip never changes it")
+            item.setFlags(flags)
+            item.setCheckState(Qt.CheckState.Checked if f in ticked and not blocked
+                               else Qt.CheckState.Unchecked)
+            self.actionable.addItem(item)
+
+    def _ticked(self) -> list[str]:
+        return [self.actionable.item(i).data(Qt.ItemDataRole.UserRole)
+                for i in range(self.actionable.count())
+                if self.actionable.item(i).checkState() == Qt.CheckState.Checked]
+
+    def set_actionable(self, features) -> None:
+        if self.case is not None:
+            self._fill_actionable(features)
+
+    # ---- jobs ----------------------------------------------------------------------------------
+    def _run(self, key, title, fn, on_done) -> None:
+        def failed(exc):
+            on_done(exc)
+
+        if self.runner is None:
+            try:
+                result = fn(None, None)
+            except Exception as exc:  # noqa: BLE001 - shown to the analyst in the panel
+                result = exc
+            on_done(result)
+            return
+        case = self.case
+        self.runner.request(key, title, fn, on_done, on_error=failed,
+                            relevant=lambda: self.case is case)
+
+    def find_flips(self) -> None:
+        case = self.case
+        if case is None:
+            return
+        actionable = self._ticked()
+        if not actionable:
+            self.flip_message.setText("Tick at least one feature the applicant could change.")
+            return
+        max_changes = self.max_changes.value()
+        self.flip_message.setText("Searching the nearest flip…")
+
+        def work(progress, cancel):
+            return nearest_flips(case.adapter, case.values_row, case.data, cutoff=case.cutoff,
+                                 adverse_if=case.adverse_if, actionable=actionable,
+                                 immutable=case.not_allowed, max_changes=max_changes,
+                                 seed=case.seed, progress=progress, cancel=cancel)
+
+        key = ("nearest flip", case.key, tuple(actionable), max_changes, case.cutoff, case.adverse_if)
+        self._run(key, "Nearest flip of one case", work, self._show_flips)
+
+    def _show_flips(self, result) -> None:
+        table = self.flip_table
+        table.setRowCount(0)
+        if isinstance(result, BaseException):
+            self.flips = None
+            self.flip_message.setText(str(result) or type(result).__name__)
+            return
+        self.flips = result
+        self.flip_message.setText(result.message)
+        wording = self.case.templates.wording if self.case is not None else None
+        table.setRowCount(len(result.options))
+        for i, option in enumerate(result.options):
+            moves = "; ".join(f"{wording(f).display_name if wording else f}: {a} → {b}"
+                              for f, a, b in option.changes)
+            for j, text in enumerate((i + 1, moves, f"{option.new_response:.4g}",
+                                      f"{option.distance:.3g}")):
+                table.setItem(i, j, _cell(text))
+        table.resizeRowsToContents()
+
+    def _flip_clicked(self, row: int, _column: int) -> None:
+        if self.flips is not None and 0 <= row < len(self.flips.options):
+            self.trial_requested.emit(self.flips.options[row].trial_values())
+
+    def check_stability(self) -> None:
+        case = self.case
+        if case is None or self.reasons is None:
+            return
+        pool = case.background if case.background is not None else case.data
+        self.stability_note.setText("Re-explaining the case with other background samples…")
+
+        def work(progress, cancel):
+            return reason_stability(case.adapter, case.values_row, pool, background_size=min(
+                case.background_size, len(pool) - 1), seed=case.seed, k=self.reasons.k,
+                adverse_if=case.adverse_if, not_allowed=case.not_allowed,
+                progress=progress, cancel=cancel)
+
+        self._run(("reason stability", case.key, case.background_size, case.seed),
+                  "Reason stability of one case", work, self._show_stability)
+
+    def _show_stability(self, result) -> None:
+        if isinstance(result, BaseException):
+            self.stability = None
+            self.stability_note.setText(str(result) or type(result).__name__)
+            return
+        self.stability = result
+        unstable = ", ".join(result.unstable) or "none"
+        self.stability_note.setText(
+            f"{result.resamples} other background samples of {result.background_size} rows: "
+            f"reasons whose rank changed in more than {result.threshold:.0%} of them are marked "
+            f"not stable (common practice, no source). Not stable: {unstable}.")
+        self._show_reasons()
+
+    def _request_similar(self) -> None:
+        case = self.case
+        self.similar_table.setRowCount(0)
+        if case.row is None:
+            self.similar_message.setText("")
+            return
+        self.similar_message.setText("Finding similar rows…")
+
+        def work(progress, cancel):
+            scores = np.asarray(case.adapter.response(case.data), dtype=float)
+            columns = [c for c in case.adapter.input_columns if c in case.data.columns]
+            cats = [c for c in case.adapter.categorical_columns if c in columns]
+            return similar_rows(case.data, case.row, k=5, columns=columns, scores=scores,
+                                labels=case.labels, categorical=cats)
+
+        self._run(("similar rows", case.key, case.row), "Similar rows of one case", work,
+                  self._show_similar)
+
+    def _show_similar(self, result) -> None:
+        table = self.similar_table
+        table.setRowCount(0)
+        if isinstance(result, BaseException):
+            self.similar = []
+            self.similar_message.setText(str(result) or type(result).__name__)
+            return
+        self.similar = list(result)
+        case = self.case
+        self.similar_message.setText(similar_summary(
+            self.similar, cutoff=case.cutoff if case else None,
+            adverse_if=case.adverse_if if case else "above"))
+        table.setRowCount(len(self.similar))
+        for i, s in enumerate(self.similar):
+            pred = "—" if s.prediction is None else f"{s.prediction:.4g}"
+            label = "—" if s.label is None else s.label
+            for j, text in enumerate((s.row, f"{s.distance:.3g}", pred, label)):
+                table.setItem(i, j, _cell(text))
+
+    def _similar_clicked(self, row: int, _column: int) -> None:
+        if 0 <= row < len(self.similar):
+            self.row_requested.emit(int(self.similar[row].row))
+
+
+def load_trial_values(table: QTableWidget, values: dict, *, value_column: int = 2) -> None:
+    """Put ``values`` into a feature table's trial-value cells (combo boxes or text cells)."""
+    for i in range(table.rowCount()):
+        name = table.item(i, 0)
+        if name is None or name.text() not in values:
+            continue
+        value = values[name.text()]
+        widget = table.cellWidget(i, value_column)
+        if widget is not None and hasattr(widget, "setCurrentText"):
+            widget.setCurrentText(str(value))
+        elif table.item(i, value_column) is not None:
+            table.item(i, value_column).setText(f"{value:.6g}" if isinstance(value, float) else str(value))
+
+
+__all__ = ["CaseInputs", "ReasonsPanel", "load_trial_values"]
