@@ -1,0 +1,119 @@
+"""Speed of the window (a script, not a test): ``python tests/benchmarks/bench_ui.py``.
+
+1. Heartbeat: a 10 ms timer on the main thread while engine jobs run in the pool; the worst gap
+   between beats is the longest the window froze.
+2. Trial values: one edit in the Case level (re-score + re-attribute, synchronous), against
+   calling ``adapter.score`` and ``attributions.explain`` directly in the same run.
+3. Portfolio with 200,000 rows: filling the table and sorting it by score, against a plain
+   ``numpy.argsort`` of the same scores.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+import time
+from pathlib import Path
+
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
+
+import numpy as np  # noqa: E402
+import pandas as pd  # noqa: E402
+
+
+def _window(synchronous: bool):
+    from PySide6.QtCore import QSettings
+
+    from workbench.ui.app import application, open_demo
+    from workbench.ui.window import MainWindow
+
+    app = application()
+    settings = QSettings(str(Path(os.environ.get("TMPDIR", "/tmp")) / "bench-ui.ini"),
+                         QSettings.Format.IniFormat)
+    win = MainWindow(qsettings=settings, synchronous=synchronous)
+    win.show()
+    open_demo(win, rows=5000)
+    return app, win
+
+
+def heartbeat() -> dict:
+    from PySide6.QtCore import QTimer
+
+    app, win = _window(synchronous=False)
+    beats = []
+    timer = QTimer()
+    timer.timeout.connect(lambda: beats.append(time.perf_counter()))
+    timer.start(10)
+    win.ctx.focus.update(model="B", level="Effect", feature="debt_to_income")
+    start = time.perf_counter()
+    while win.ctx.runner.running or time.perf_counter() - start < 0.5:
+        app.processEvents()
+        time.sleep(0.002)
+    timer.stop()
+    gaps = np.diff(beats) * 1000
+    win.close()
+    return {"jobs_seconds": round(time.perf_counter() - start, 2),
+            "worst_stall_ms": round(float(gaps.max()), 1), "median_beat_ms": round(float(np.median(gaps)), 1)}
+
+
+def trial_values() -> dict:
+    from workbench.engine.attributions import explain
+
+    app, win = _window(synchronous=True)
+    out = {}
+    for slot in ("A", "B"):
+        win.ctx.focus.update(model=slot, level="Case", row=7)
+        case = win.levels["Case"]
+        adapter = win.ctx.workspace.adapter(slot)
+        ui_times, direct_times = [], []
+        for k, value in enumerate(np.linspace(0.1, 0.8, 6)):
+            t0 = time.perf_counter()
+            case.set_trial("debt_to_income", float(value) + k * 1e-6)
+            ui_times.append(time.perf_counter() - t0)
+            frame = case.trial_frame()
+            t0 = time.perf_counter()
+            adapter.score(frame)
+            explain(adapter, frame, background=win.ctx.workspace.background_frame(),
+                    background_size=100, seed=0)
+            direct_times.append(time.perf_counter() - t0)
+        ui, direct = np.median(ui_times[1:]), np.median(direct_times[1:])
+        out[slot] = {"ui_ms": round(ui * 1000, 1), "direct_ms": round(direct * 1000, 1),
+                     "ratio": round(ui / direct, 2)}
+    win.close()
+    return out
+
+
+def portfolio_200k() -> dict:
+    from PySide6.QtCore import Qt
+
+    from workbench.engine.loading import dataset_from_frame
+
+    app, win = _window(synchronous=True)
+    base = win.ctx.workspace.frame
+    big = pd.concat([base] * 40, ignore_index=True).head(200_000)
+    t0 = time.perf_counter()
+    win.ctx.workspace.set_data(dataset_from_frame(big, target=win.ctx.workspace.settings.target))
+    app.processEvents()
+    fill = time.perf_counter() - t0
+    portfolio = win.levels["Portfolio"]
+    col = next(i for i, h in enumerate(portfolio.model.headers) if h.startswith("score"))
+    t0 = time.perf_counter()
+    portfolio.model.sort(col, Qt.SortOrder.DescendingOrder)
+    app.processEvents()
+    sort = time.perf_counter() - t0
+    scores = portfolio.model.arrays[col]
+    t0 = time.perf_counter()
+    np.argsort(-scores, kind="stable")
+    plain = time.perf_counter() - t0
+    rows = portfolio.model.rowCount()
+    win.close()
+    return {"rows": rows, "fill_and_score_s": round(fill, 2), "sort_ms": round(sort * 1000, 1),
+            "numpy_argsort_ms": round(plain * 1000, 1), "sort_ratio": round(sort / plain, 1)}
+
+
+if __name__ == "__main__":
+    for name, fn in (("heartbeat", heartbeat), ("trial_values", trial_values),
+                     ("portfolio_200k", portfolio_200k)):
+        print(name, fn(), flush=True)
+    os._exit(0)  # skip Qt teardown
