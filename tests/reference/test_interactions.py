@@ -31,7 +31,7 @@ class FormulaRegressor(RegressorMixin, BaseEstimator):
     def predict(self, X):
         a = np.asarray(X, dtype=float)
         x1, x2, x3 = a[:, 0], a[:, 1], a[:, 2]
-        return {"add": x1 + x2, "mul": x1 * x2, "mix": x1 + x2 + x1 * x2,
+        return {"one": x1, "add": x1 + x2, "mul": x1 * x2, "mix": x1 + x2 + x1 * x2,
                 "mul_plus": x1 * x2 + x3}[self.formula]
 
 
@@ -53,6 +53,15 @@ def test_additive_function_has_no_interaction(uniform):
     res = _h2("add", uniform)
     assert res.h2_pairs[0, 1] == pytest.approx(0.0, abs=1e-12)
     np.testing.assert_allclose(res.h2_overall, 0.0, atol=1e-12)
+
+
+def test_pair_without_any_effect_has_h_zero_not_noise(uniform):
+    """f = x1: the pair (x2, x3) has no joint effect at all; eq. 44 is 0/0 there, which we report
+    as 0 (no interaction) rather than rounding noise over rounding noise (our convention,
+    documented in workbench.engine.interactions)."""
+    res = _h2("one", uniform.iloc[:300])
+    assert res.h2_pairs[1, 2] == 0.0
+    assert np.isnan(res.h2_pairs[0, 0])
 
 
 def test_pure_product_is_all_interaction(uniform):

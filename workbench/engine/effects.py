@@ -69,9 +69,13 @@ def scale_units(adapter: ModelAdapter, scale: str) -> str:
 
 def values_like(series: pd.Series, values) -> pd.api.extensions.ExtensionArray | np.ndarray:
     """``values`` as a column of the same kind as ``series`` (numbers stay float, levels keep dtype)."""
-    if pd.api.types.is_numeric_dtype(series.dtype) and not pd.api.types.is_bool_dtype(series.dtype):
-        return np.asarray(values, dtype=float)
-    return pd.array(np.asarray(values, dtype=object), dtype=series.dtype)
+    dtype = series.dtype
+    if pd.api.types.is_numeric_dtype(dtype) and not pd.api.types.is_bool_dtype(dtype):
+        arr = np.asarray(values, dtype=float)
+        if pd.api.types.is_integer_dtype(dtype) and np.all(arr == np.round(arr)):
+            return pd.array(arr.astype(np.int64), dtype=dtype)  # codes stay integers
+        return arr
+    return pd.array(np.asarray(values, dtype=object), dtype=dtype)
 
 
 def stacked_frame(x: pd.DataFrame, base_index: np.ndarray, *, column_index: dict | None = None,
@@ -149,6 +153,11 @@ def _grid_values(adapter, x, feature, grid, grid_size):
     values = np.asarray(list(grid), dtype=object if categorical else float)
     if values.ndim != 1 or values.size == 0:
         raise InputError(f"the grid for '{feature}' must be a non-empty list of values")
+    dtype = x[feature].dtype
+    if isinstance(dtype, pd.CategoricalDtype):
+        unknown = [v for v in values if v not in set(dtype.categories)]
+        if unknown:
+            raise InputError(f"grid value(s) {unknown[:3]} are not categories of '{feature}'")
     return categorical, values
 
 

@@ -39,13 +39,16 @@ from workbench.engine.effects import (
 from workbench.engine.errors import InputError
 from workbench.engine.jobs import rng, step
 
+NIL_SHARE = 1e-12  # an effect whose sum of squares is below this share of the model's is nil
+
 
 @dataclass(frozen=True)
 class Interactions:
     """H-statistics of ``features``.
 
     ``h2_overall`` (p,): H^2_j; ``h2_pairs`` (p, p): H^2_jk, symmetric, NaN on the diagonal and
-    where the pair was not computed (outside the screened features) or the pair has no effect;
+    where the pair was not computed (outside the screened features); 0 for a pair whose joint
+    effect is nil (sum of squares below ``NIL_SHARE`` of the model's);
     ``screened``: the features whose pairs were computed; ``sample``: rows in the sample.
     """
 
@@ -80,10 +83,15 @@ def _centre(v: np.ndarray) -> np.ndarray:
     return v - v.mean()
 
 
-def _ratio(numerator: np.ndarray, denominator: np.ndarray) -> float:
+def _ratio(numerator: np.ndarray, denominator: np.ndarray, scale: float) -> float:
+    """sum(numerator^2) / sum(denominator^2); 0 when the denominator is nil next to ``scale``.
+
+    A pair (or feature) whose effect is nil has no interaction to speak of; without the guard
+    its H^2 would be rounding noise divided by rounding noise.
+    """
     d = float(np.sum(denominator ** 2))
-    if d <= 1e-300:
-        return float("nan")
+    if d <= NIL_SHARE * scale:
+        return 0.0
     return float(np.sum(numerator ** 2)) / d
 
 
@@ -125,6 +133,10 @@ def h_statistics(adapter: ModelAdapter, frame: pd.DataFrame, *, sample: int = 30
     s = x.iloc[pos].reset_index(drop=True)
     m = len(s)
     f_all = _centre(np.asarray(score(s), dtype=float))
+    total_ss = float(np.sum(f_all ** 2))
+    if total_ss <= 0:
+        raise InputError("the model gives the same output for every row of the sample; "
+                         "there is nothing to split into effects")
     p = len(feats)
     n_screen = p if screen is None else max(0, min(int(screen), p))
     n_pairs = n_screen * (n_screen - 1) // 2
@@ -137,7 +149,7 @@ def h_statistics(adapter: ModelAdapter, frame: pd.DataFrame, *, sample: int = 30
                                start=j / total, width=1 / total, label=f"H-statistic: {f}")
         one_way[j] = _centre(mat.mean(axis=1))
         rest = _centre(mat.mean(axis=0))
-        h2[j] = _ratio(f_all - one_way[j] - rest, f_all)
+        h2[j] = _ratio(f_all - one_way[j] - rest, f_all, total_ss)
     pairs = np.full((p, p), np.nan)
     strength = np.where(np.isfinite(h2), h2, -np.inf)
     chosen = sorted(np.argsort(-strength, kind="stable")[:n_screen].tolist())
@@ -148,7 +160,8 @@ def h_statistics(adapter: ModelAdapter, frame: pd.DataFrame, *, sample: int = 30
                                    cancel=cancel, start=done / total, width=1 / total,
                                    label=f"H-statistic: {feats[j]} x {feats[k]}")
             joint = _centre(mat.mean(axis=1))
-            pairs[j, k] = pairs[k, j] = _ratio(joint - one_way[j] - one_way[k], joint)
+            pairs[j, k] = pairs[k, j] = _ratio(joint - one_way[j] - one_way[k], joint,
+                                                 total_ss)
             done += 1
     step(progress, cancel, 1.0, "H-statistics: done")
     return Interactions(feats, h2, pairs, [feats[j] for j in chosen], int(m),
