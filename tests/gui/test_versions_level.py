@@ -102,3 +102,14 @@ def test_own_cutoff_for_b_recomputes_the_swap_table(versions):
     assert c.swap.cutoff_b == pytest.approx(0.5) and c.swap.cutoff_a == pytest.approx(0.2)
     assert "B's cutoff 0.5" in level.swap_title.text()
     assert {k: _count(b) for k, b in level.swap_buttons.items()} == c.swap.counts
+
+
+def test_cancelled_comparison_says_so_and_runs_again(versions):
+    from workbench.engine.errors import Cancelled
+
+    window, level = versions
+    level._failed(Cancelled("resampling rows"))
+    assert level.comparison is None and level.metrics_table.rowCount() == 0
+    level.again.click()
+    assert window.ctx.runner.wait_idle(300)
+    assert level.comparison is not None and level.metrics_table.rowCount() == 5

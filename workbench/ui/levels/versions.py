@@ -32,6 +32,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from workbench.engine.errors import Cancelled
 from workbench.ui.levels.base import Level, register_level
 from workbench.ui.plotting import (
     CURVE,
@@ -101,10 +102,14 @@ class VersionsLevel(Level):
         self.cutoff_b.setSingleStep(0.01)
         self.cutoff_b.setKeyboardTracking(False)
         self.cutoff_b.setEnabled(False)
+        self.again = QPushButton("Compare again")
+        self.again.setToolTip("Run the comparison again (after a cancel, for instance)")
+        self.again.clicked.connect(lambda: self.refresh(force=True))
         top = QHBoxLayout()
         top.addWidget(self.heading, 1)
         top.addWidget(self.own_cutoff)
         top.addWidget(self.cutoff_b)
+        top.addWidget(self.again)
 
         # ---- left: metrics, DeLong, agreement, swap grid, rows of a cell
         self.metrics_table = QTableWidget(0, 5)
@@ -316,6 +321,9 @@ class VersionsLevel(Level):
                                 on_error=self._failed, relevant=self.relevant())
 
     def _failed(self, exc) -> None:
+        if isinstance(exc, Cancelled):
+            self._clear("Comparison cancelled: press Compare again to run it")
+            return
         self._clear(f"The models could not be compared: {exc}")
         self.metrics_note.setText(str(exc))
 
@@ -526,7 +534,7 @@ class VersionsLevel(Level):
         if c.swap is not None:
             for cell, rows in c.swap.rows.items():
                 cell_of[rows] = cell
-        plot.addLegend(offset=(-8, -8))
+        plot.addLegend(offset=(-4, -4), brush=pg.mkBrush(255, 255, 255, 210))
         size = 4 if len(shown) > 5000 else 6
         for cell in ("both_accept", "both_decline", "swap_in", "swap_out"):
             pick = shown[cell_of[shown] == cell]
@@ -534,7 +542,7 @@ class VersionsLevel(Level):
                 continue
             plot.addItem(pg.ScatterPlotItem(
                 c.response_a[pick], c.response_b[pick], size=size, pen=None,
-                brush=colour(CELL_COLOURS[cell], 150), name=CELL_TITLES[cell]))
+                brush=colour(CELL_COLOURS[cell], 150), name=cell.replace("_", " ")))
         lo = float(min(c.response_a.min(), c.response_b.min()))
         hi = float(max(c.response_a.max(), c.response_b.max()))
         plot.addItem(pg.PlotDataItem([lo, hi], [lo, hi], pen=pg.mkPen(NEUTRAL, width=1,
@@ -545,7 +553,7 @@ class VersionsLevel(Level):
                     "#6A3D9A", width=1.2, style=Qt.PenStyle.DotLine)))
         thinned = "" if len(shown) == n else f"; {len(shown):,} of {n:,} rows shown (seeded sample)"
         self.scatter.set_text(f"Score agreement scatter: A against B, one point per row, "
-                              f"coloured by swap table cell{thinned}",
+                              f"coloured as the swap table cells, cutoffs dotted{thinned}",
                               f"score of A, champion ({c.units})",
                               f"score of B, challenger ({c.units})")
 
@@ -587,11 +595,10 @@ class VersionsLevel(Level):
         for k in range(len(order)):
             plot.addItem(pg.PlotDataItem([ia[k], ib[k]], [ys[k], ys[k]],
                                          pen=pg.mkPen("#999999", width=2)))
-        plot.addLegend(offset=(-8, -8))
         plot.addItem(pg.ScatterPlotItem(ia, ys, symbol="o", size=10, brush=colour(CURVE),
-                                        pen=pg.mkPen("w"), name="A (champion)"))
+                                        pen=pg.mkPen("w")))
         plot.addItem(pg.ScatterPlotItem(ib, ys, symbol="s", size=10, brush=colour(SECOND),
-                                        pen=pg.mkPen("w"), name="B (challenger)"))
+                                        pen=pg.mkPen("w")))
         labels = [f"{r.features[i]}  ({r.rank_a[i]} → {r.rank_b[i]})" for i in order]
         plot.getAxis("left").setTicks([list(zip(ys, labels, strict=True))])
         plot.setYRange(-0.6, len(order) - 0.4, padding=0)
@@ -600,9 +607,9 @@ class VersionsLevel(Level):
         plot.setXRange(lo - 0.05 * (hi - lo or 1), hi + 0.08 * (hi - lo or 1), padding=0)
         change = "drop" if c.higher_is_better.get(r.metric, True) else "rise"
         self.shift_plot.set_text(
-            f"Ranking shift: permutation importance under A and B, largest rank change first "
-            f"(rank A → rank B; {r.repeats} repeats, {r.rows_used:,} rows)",
-            f"{change} in {METRIC_NAMES.get(r.metric, r.metric)} when shuffled", None)
+            f"Ranking shift: permutation importance under A (dark circles) and B (orange "
+            f"squares), largest rank change first (rank A → rank B; {r.repeats} repeats, "
+            f"{r.rows_used:,} rows)", f"{change} in {METRIC_NAMES.get(r.metric, r.metric)}", None)
 
     def _hover_shift(self, x: float, y: float) -> str | None:
         i = int(round(y))
