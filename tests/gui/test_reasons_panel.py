@@ -73,3 +73,27 @@ def test_flip_without_actionable_features_says_so(qtbot, case):
     item.setCheckState(Qt.CheckState.Checked)
     panel.find_flips()
     assert panel.flips is not None
+
+
+def test_case_level_loads_a_flip_as_trial_values(demo_window):
+    """In the window: the Case level embeds the panel; a flip option becomes trial values and
+    the re-scored case lies on the other side of the cutoff."""
+    win = demo_window
+    ws = win.ctx.workspace
+    cutoff = ws.settings.cutoff
+    r = ws.adapter("A").response(ws.frame)
+    near = int(np.flatnonzero((r >= cutoff) & (r < cutoff + 0.1))[0])  # just over the cutoff
+    win.ctx.focus.update(row=near)
+    win.show_level("Case")
+    case = win.levels["Case"]
+    panel = case.reasons_panel
+    assert panel.case.row == near
+    assert panel.reasons is not None and panel.reasons.adverse
+    assert panel.reason_table.rowCount() == len(panel.reasons.reasons) > 0
+    panel.set_actionable(["debt_to_income", "loan_amount", "revolving_utilisation", "term_months"])
+    panel.find_flips()
+    assert panel.flips is not None and panel.flips.found, panel.flip_message.text()
+    option = panel.flips.options[0]
+    panel.flip_table.cellClicked.emit(0, 1)
+    assert set(case.trial) == set(option.features)
+    assert case.trial_score < cutoff <= case.data_score

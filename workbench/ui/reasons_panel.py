@@ -23,6 +23,7 @@ from PySide6.QtWidgets import (
     QListWidget,
     QListWidgetItem,
     QPushButton,
+    QScrollArea,
     QSpinBox,
     QTableWidget,
     QTableWidgetItem,
@@ -362,6 +363,33 @@ class ReasonsPanel(QWidget):
             self.row_requested.emit(int(self.similar[row].row))
 
 
+def scrolled(panel: QWidget) -> QScrollArea:
+    """The panel in a scroll area, for a narrow pane beside the contribution bars."""
+    area = QScrollArea()
+    area.setWidgetResizable(True)
+    area.setWidget(panel)
+    area.setMinimumWidth(320)
+    return area
+
+
+def show_for_case_level(panel: ReasonsPanel, level, attributions) -> None:
+    """Fill ``panel`` from the Case level's workspace, focus and trial values."""
+    ws, state = level.ctx.workspace, level.state
+    adapter = ws.adapter(state.model)
+    if adapter is None or ws.frame is None or state.row is None:
+        panel.clear("No case chosen.")
+        return
+    settings = ws.settings
+    values = level.trial_frame()[list(adapter.input_columns)]
+    digest = getattr(level, "_digest", "")
+    panel.set_case(CaseInputs(
+        adapter=adapter, values_row=values, attributions=attributions, data=ws.frame,
+        cutoff=float(settings.cutoff), row=int(state.row), background=ws.background_frame(),
+        background_size=int(settings.background_size), seed=int(settings.seed),
+        labels=ws.labels(state.model),
+        key=(ws.generation, state.model, int(state.row), digest)))
+
+
 def load_trial_values(table: QTableWidget, values: dict, *, value_column: int = 2) -> None:
     """Put ``values`` into a feature table's trial-value cells (combo boxes or text cells)."""
     for i in range(table.rowCount()):
@@ -376,4 +404,4 @@ def load_trial_values(table: QTableWidget, values: dict, *, value_column: int = 
             table.item(i, value_column).setText(f"{value:.6g}" if isinstance(value, float) else str(value))
 
 
-__all__ = ["CaseInputs", "ReasonsPanel", "load_trial_values"]
+__all__ = ["CaseInputs", "ReasonsPanel", "load_trial_values", "scrolled", "show_for_case_level"]

@@ -28,6 +28,12 @@ from PySide6.QtWidgets import (
 
 from workbench.ui.levels.base import Level, register_level
 from workbench.ui.plotting import LOWERS, NEUTRAL, RAISES, TitledPlot, colour, message_item
+from workbench.ui.reasons_panel import (
+    ReasonsPanel,
+    load_trial_values,
+    scrolled,
+    show_for_case_level,
+)
 from workbench.ui.results import values_digest
 
 TOP_BARS = 12
@@ -116,6 +122,10 @@ class CaseLevel(Level):
         split = QSplitter(Qt.Orientation.Horizontal)
         split.addWidget(left)
         split.addWidget(right)
+        self.reasons_panel = ReasonsPanel(ctx.runner)  # reason statements, nearest flip, similar rows
+        self.reasons_panel.trial_requested.connect(lambda values: load_trial_values(self.table, values))
+        self.reasons_panel.row_requested.connect(lambda row: self.go(row=int(row)))
+        split.addWidget(scrolled(self.reasons_panel))
         split.setSizes([380, 900])
         layout = QVBoxLayout(self)
         layout.addLayout(top)
@@ -328,6 +338,7 @@ class CaseLevel(Level):
         self.bar_values = bar_values
         self._draw_bars(labels, bar_values, adapter)
         self._draw_running(labels, bar_values, base, adapter)
+        show_for_case_level(self.reasons_panel, self, attributions)
 
     def _draw_bars(self, labels, values, adapter) -> None:
         plot = self.bars.plot
