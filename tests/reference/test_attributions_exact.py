@@ -40,10 +40,14 @@ treeshap.shap_values(e, X[:3], method="interventional", background=X[:10])
 
 
 def kernel_works() -> str | None:
-    """None when our tree kernel runs on a tiny model (in a child process: it may crash), else why not."""
+    """None when our tree kernel runs on a tiny model, else why not.
+
+    The probe runs in a child process: a kernel under construction may crash the interpreter."""
     if tree_module.kernel() is None:
         return "our tree kernel is not importable"
-    proc = subprocess.run([sys.executable, "-c", KERNEL_PROBE], capture_output=True, text=True, timeout=600)
+    proc = subprocess.run(
+        [sys.executable, "-c", KERNEL_PROBE], capture_output=True, text=True, timeout=600
+    )
     if proc.returncode != 0:
         return f"our tree kernel fails on a tiny model (exit {proc.returncode})"
     return None
@@ -86,14 +90,21 @@ def brute_force(predict, row: pd.DataFrame, background: pd.DataFrame) -> dict[st
 
 def mixed_frame(n=160, seed=3):
     rng = np.random.default_rng(seed)
-    df = pd.DataFrame({
-        "income": rng.normal(50, 12, n).round(1),
-        "tenure": rng.integers(0, 30, n).astype(float),
-        "region": pd.array(rng.choice(["north", "south", "east", "west"], n), dtype="str"),
-        "product": pd.array(rng.choice(["card", "loan", "lease"], n), dtype="str"),
-    })
-    z = 0.06 * (df["income"] - 50) - 0.05 * df["tenure"] + 0.9 * (df["region"] == "west") \
-        - 0.7 * (df["product"] == "lease") + 0.04 * (df["income"] - 50) * (df["product"] == "card")
+    df = pd.DataFrame(
+        {
+            "income": rng.normal(50, 12, n).round(1),
+            "tenure": rng.integers(0, 30, n).astype(float),
+            "region": pd.array(rng.choice(["north", "south", "east", "west"], n), dtype="str"),
+            "product": pd.array(rng.choice(["card", "loan", "lease"], n), dtype="str"),
+        }
+    )
+    z = (
+        0.06 * (df["income"] - 50)
+        - 0.05 * df["tenure"]
+        + 0.9 * (df["region"] == "west")
+        - 0.7 * (df["product"] == "lease")
+        + 0.04 * (df["income"] - 50) * (df["product"] == "card")
+    )
     y = (rng.uniform(size=n) < 1 / (1 + np.exp(-z))).astype(int)
     return df, y
 
@@ -109,7 +120,9 @@ def encoder(kind):
 
 def check_rows(adapter, predict, frame, background, result, tol):
     for i in range(len(frame)):
-        expected = brute_force(predict, frame.iloc[[i]][adapter.input_columns], background[adapter.input_columns])
+        expected = brute_force(
+            predict, frame.iloc[[i]][adapter.input_columns], background[adapter.input_columns]
+        )
         got = result.row(i)
         for c in adapter.input_columns:
             assert got[c] == pytest.approx(expected[c], abs=tol), (c, i)
@@ -144,7 +157,8 @@ def test_linear_one_hot_sum_equals_raw_column_shapley():
 
 
 def test_linear_class_zero_is_the_mirror_margin():
-    """Class of interest 0 of a binary margin model: SHAP values of -margin (Shapley 1953, linearity)."""
+    """Class of interest 0 of a binary margin model: the SHAP values of -margin (Shapley 1953,
+    linearity of the value)."""
     df, y = mixed_frame()
     model = make_pipeline(encoder("onehot"), LogisticRegression(max_iter=2000)).fit(df, y)
     adapter = ModelAdapter(model).with_class(0)
@@ -189,9 +203,13 @@ def native_categorical_model():
     df, y = mixed_frame(n=400, seed=5)
     model = make_pipeline(
         encoder("ordinal"),
-        HistGradientBoostingClassifier(max_iter=20, max_depth=3, categorical_features=[0, 1], random_state=0),
+        HistGradientBoostingClassifier(
+            max_iter=20, max_depth=3, categorical_features=[0, 1], random_state=0
+        ),
     ).fit(df, y)
-    assert tree_module.has_categorical_splits(model[-1])  # else the test would not test the fallback
+    assert tree_module.has_categorical_splits(
+        model[-1]
+    )  # else the test would not test the fallback
     return model, df
 
 

@@ -67,6 +67,10 @@ def test_multiclass_uses_the_class_of_interest_row():
     for k in (0, 2):
         adapter = ModelAdapter(model).with_class(k)
         res = explain(adapter, X.iloc[::30], background=X, background_size="all")
-        np.testing.assert_allclose(res.values, model.coef_[k] * (X.iloc[::30].to_numpy() - mean), atol=1e-9)
-        np.testing.assert_allclose(res.output, model.decision_function(X.iloc[::30])[:, k], atol=1e-9)
+        np.testing.assert_allclose(
+            res.values, model.coef_[k] * (X.iloc[::30].to_numpy() - mean), atol=1e-9
+        )
+        np.testing.assert_allclose(
+            res.output, model.decision_function(X.iloc[::30])[:, k], atol=1e-9
+        )
         np.testing.assert_allclose(res.residual, 0.0, atol=1e-9)

@@ -36,8 +36,15 @@ def svr_case():
 
 def sample(case, permutations, seed):
     adapter, background, rows, _ = case
-    return explain(adapter, rows, method="sampling", permutations=permutations,
-                   background=background, background_size="all", seed=seed)
+    return explain(
+        adapter,
+        rows,
+        method="sampling",
+        permutations=permutations,
+        background=background,
+        background_size="all",
+        seed=seed,
+    )
 
 
 def test_error_shrinks_with_more_permutations(svr_case):

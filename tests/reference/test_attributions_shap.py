@@ -44,7 +44,9 @@ def kernel_reason():
 
 
 def shap_path(model, X):
-    explainer = shap.TreeExplainer(model, feature_perturbation="tree_path_dependent", model_output="raw")
+    explainer = shap.TreeExplainer(
+        model, feature_perturbation="tree_path_dependent", model_output="raw"
+    )
     values = np.asarray(explainer.shap_values(X.to_numpy(), check_additivity=False))
     return values, np.atleast_1d(explainer.expected_value)
 
@@ -115,8 +117,9 @@ def test_random_forest_interventional_through_explain_is_shap(diabetes):
     X, y = diabetes
     model = RandomForestRegressor(n_estimators=10, max_depth=4, random_state=0).fit(X, y)
     rows = X.iloc[::61]
-    res = explain(ModelAdapter(model), rows, method="tree-reference", background=X,
-                  background_size=40, seed=3)
+    res = explain(
+        ModelAdapter(model), rows, method="tree-reference", background=X, background_size=40, seed=3
+    )
     bg = select_background(X, 40, seed=3)
     explainer = shap.TreeExplainer(model, data=bg.to_numpy(), feature_perturbation="interventional")
     expected = explainer.shap_values(rows.to_numpy(), check_additivity=False)
@@ -136,7 +139,9 @@ def test_interventional_forest_on_diabetes_equals_exact_enumeration(diabetes, ke
     rows = X.iloc[[5, 300]]
     exact = explain(adapter, rows, method="exact", background=X, background_size=40, seed=3)
     assert exact.max_abs_residual < 1e-9
-    shap_route = explain(adapter, rows, method="tree-reference", background=X, background_size=40, seed=3)
+    shap_route = explain(
+        adapter, rows, method="tree-reference", background=X, background_size=40, seed=3
+    )
     if shap_route.max_abs_residual > 1e-6 * 150:
         assert any("residual" in n for n in shap_route.notes)
     if kernel_reason is None:
@@ -167,7 +172,9 @@ def test_linear_matches_shap_linear_explainer(cancer):
     explainer = shap.LinearExplainer(model[-1], z_bg)
     expected = explainer.shap_values(model[0].transform(rows))
     np.testing.assert_allclose(res.values, expected, atol=1e-6)
-    assert res.base_value == pytest.approx(float(np.atleast_1d(explainer.expected_value)[0]), abs=1e-6)
+    assert res.base_value == pytest.approx(
+        float(np.atleast_1d(explainer.expected_value)[0]), abs=1e-6
+    )
 
 
 def test_poisson_glm_matches_shap_linear_explainer_on_link_scale(diabetes):

@@ -46,7 +46,7 @@ def mixed_data(n=120, seed=1):
     return X, y
 
 
-# ---- select_background -----------------------------------------------------------------------------
+# ---- select_background ------------------------------------------------------------------------
 def test_select_background_is_seeded_sorted_and_checked():
     X, _ = numeric_data()
     a, b = select_background(X, 30, seed=4), select_background(X, 30, seed=4)
@@ -60,7 +60,7 @@ def test_select_background_is_seeded_sorted_and_checked():
         select_background(X, 121)
 
 
-# ---- method choice -----------------------------------------------------------------------------------
+# ---- method choice ----------------------------------------------------------------------------
 def test_auto_chooses_by_model_kind(no_kernel):
     X, y = numeric_data()
     cases = [
@@ -78,8 +78,13 @@ def test_auto_chooses_by_model_kind(no_kernel):
 
 def test_auto_samples_beyond_twelve_columns():
     X, y = numeric_data(p=13)
-    res = explain(ModelAdapter(KNeighborsRegressor().fit(X, y)), X.iloc[:1], background=X, background_size=5,
-                  permutations=4)
+    res = explain(
+        ModelAdapter(KNeighborsRegressor().fit(X, y)),
+        X.iloc[:1],
+        background=X,
+        background_size=5,
+        permutations=4,
+    )
     assert res.method == "sampling" and res.permutations == 4
 
 
@@ -96,7 +101,9 @@ def test_tree_kernel_is_preferred_when_it_supports_the_model():
 
 def test_unmappable_pipeline_uses_the_model_agnostic_method(no_kernel):
     X, y = numeric_data()
-    model = make_pipeline(PCA(n_components=3), RandomForestClassifier(n_estimators=5, random_state=0)).fit(X, y)
+    model = make_pipeline(
+        PCA(n_components=3), RandomForestClassifier(n_estimators=5, random_state=0)
+    ).fit(X, y)
     adapter = ModelAdapter(model)
     assert not adapter.mappable
     res = explain(adapter, X.iloc[:2], background=X, background_size=10)
@@ -115,7 +122,9 @@ def test_shap_gaps_fall_back_with_a_note(no_kernel):
     res = explain(ModelAdapter(hgb), X.iloc[:2], background=X, background_size=10)
     assert res.method == "exact" and any("HistGradientBoostingClassifier" in n for n in res.notes)
     with pytest.raises(InputError, match="cannot explain this model"):
-        explain(ModelAdapter(hgb), X.iloc[:2], method="tree-reference", background=X, background_size=10)
+        explain(
+            ModelAdapter(hgb), X.iloc[:2], method="tree-reference", background=X, background_size=10
+        )
     path = explain(ModelAdapter(hgb), X.iloc[:2], form="path")  # shap's path form is right here
     assert path.method == "tree-reference" and path.max_abs_residual < 1e-9
 
@@ -126,8 +135,13 @@ def test_native_categorical_splits_refuse_the_reference_library():
     model = HistGradientBoostingRegressor(max_iter=10, categorical_features=[1]).fit(codes, y)
     assert tree_module.has_categorical_splits(model)
     with pytest.raises(InputError, match="categorical splits"):
-        explain(ModelAdapter(model), codes.iloc[:2], method="tree-reference", background=codes,
-                background_size=10)
+        explain(
+            ModelAdapter(model),
+            codes.iloc[:2],
+            method="tree-reference",
+            background=codes,
+            background_size=10,
+        )
 
 
 def test_tree_on_one_hot_parts_says_what_the_sum_means(no_kernel):
@@ -146,12 +160,14 @@ def test_residual_guard_distrusts_a_wrong_model_space_result(monkeypatch):
     monkeypatch.setattr(linear, "linear_values", lambda *a: (real(*a)[0], real(*a)[1] + 0.5))
     res = explain(ModelAdapter(model), X.iloc[:2], background=X, background_size=20)
     assert res.method == "exact" and any("residual" in n for n in res.notes)
-    forced = explain(ModelAdapter(model), X.iloc[:2], method="linear", background=X, background_size=20)
+    forced = explain(
+        ModelAdapter(model), X.iloc[:2], method="linear", background=X, background_size=20
+    )
     assert forced.method == "linear" and forced.max_abs_residual == pytest.approx(0.5)
     assert any("do not add up" in n for n in forced.notes)
 
 
-# ---- errors -------------------------------------------------------------------------------------------
+# ---- errors -----------------------------------------------------------------------------------
 def test_bad_requests_raise_input_error():
     X, y = numeric_data()
     forest = ModelAdapter(RandomForestClassifier(n_estimators=3, random_state=0).fit(X, y))
@@ -174,22 +190,31 @@ def test_bad_requests_raise_input_error():
         explain(knn, X.iloc[:1])  # the default background is drawn from the row itself
     wide, yw = numeric_data(p=17)
     with pytest.raises(InputError, match="sampling"):
-        explain(ModelAdapter(KNeighborsRegressor().fit(wide, yw)), wide.iloc[:1], method="exact",
-                background=wide, background_size=3)
+        explain(
+            ModelAdapter(KNeighborsRegressor().fit(wide, yw)),
+            wide.iloc[:1],
+            method="exact",
+            background=wide,
+            background_size=3,
+        )
 
 
 def test_result_is_frozen():
     X, y = numeric_data()
-    res = explain(ModelAdapter(LogisticRegression().fit(X, y)), X.iloc[:2], background=X, background_size=10)
+    res = explain(
+        ModelAdapter(LogisticRegression().fit(X, y)), X.iloc[:2], background=X, background_size=10
+    )
     with pytest.raises(dataclasses.FrozenInstanceError):
         res.method = "other"
 
 
-# ---- batching, progress, cancel, types ---------------------------------------------------------------
+# ---- batching, progress, cancel, types --------------------------------------------------------
 def test_chunked_scoring_equals_one_batch(monkeypatch):
     X, y = mixed_data()
-    model = make_pipeline(ColumnTransformer([("k", OneHotEncoder(), ["kind"])], remainder="passthrough"),
-                          KNeighborsRegressor()).fit(X, y)
+    model = make_pipeline(
+        ColumnTransformer([("k", OneHotEncoder(), ["kind"])], remainder="passthrough"),
+        KNeighborsRegressor(),
+    ).fit(X, y)
     adapter = ModelAdapter(model)
     whole = explain(adapter, X.iloc[:3], background=X, background_size=15)
     monkeypatch.setattr(agnostic, "CHUNK_ROWS", 7)
@@ -205,7 +230,9 @@ def test_progress_rises_to_one_and_cancel_stops():
     X, y = numeric_data()
     adapter = ModelAdapter(KNeighborsRegressor().fit(X, y))
     seen = []
-    explain(adapter, X.iloc[:2], background=X, background_size=30, progress=lambda f, m: seen.append(f))
+    explain(
+        adapter, X.iloc[:2], background=X, background_size=30, progress=lambda f, m: seen.append(f)
+    )
     assert seen[-1] == 1.0 and all(b >= a for a, b in zip(seen, seen[1:], strict=False))
     stop = threading.Event()
     stop.set()
@@ -216,15 +243,19 @@ def test_progress_rises_to_one_and_cancel_stops():
 def test_text_category_and_missing_values_keep_their_types():
     rng = np.random.default_rng(3)
     n = 80
-    X = pd.DataFrame({
-        "kind": pd.Series(rng.choice(["a", "b"], n), dtype="category"),
-        "label": pd.array(rng.choice(["x", "y", "z"], n), dtype="str"),
-        "amount": np.where(rng.uniform(size=n) < 0.2, np.nan, rng.normal(size=n)),
-    })
+    X = pd.DataFrame(
+        {
+            "kind": pd.Series(rng.choice(["a", "b"], n), dtype="category"),
+            "label": pd.array(rng.choice(["x", "y", "z"], n), dtype="str"),
+            "amount": np.where(rng.uniform(size=n) < 0.2, np.nan, rng.normal(size=n)),
+        }
+    )
     y = (X["label"] == "x").astype(int) + X["amount"].fillna(0)
     seen_dtypes = []
-    ct = ColumnTransformer([("cat", OneHotEncoder(handle_unknown="ignore"), ["kind", "label"])],
-                           remainder=SimpleImputer())
+    ct = ColumnTransformer(
+        [("cat", OneHotEncoder(handle_unknown="ignore"), ["kind", "label"])],
+        remainder=SimpleImputer(),
+    )
     model = make_pipeline(ct, KNeighborsRegressor()).fit(X, y)
     adapter = ModelAdapter(model)
     real = adapter.score

@@ -30,20 +30,43 @@ CAUTION = "These contributions describe the model, not the world."
 
 
 def register(sub) -> None:
-    p = sub.add_parser("case", help="explain one row: the contribution of each input column (SHAP values)")
+    p = sub.add_parser(
+        "case", help="explain one row: the contribution of each input column (SHAP values)"
+    )
     add_model_argument(p)
     add_data_arguments(p)
-    p.add_argument("--row", type=int, required=True, help="the row to explain, counting data rows from 0")
-    p.add_argument("--background", default=None, metavar="K|all",
-                   help=f"background rows drawn from the data file (default {DEFAULT_BACKGROUND}, "
-                        "or every row when the file has fewer)")
-    p.add_argument("--method", default="auto", metavar="METHOD",
-                   help="auto (default), tree, tree-reference (shap's TreeExplainer), linear, exact or sampling")
-    p.add_argument("--form", default="interventional", metavar="FORM",
-                   help="interventional (default: against the background) or path (tree methods only)")
-    p.add_argument("--seed", type=int, default=0, help="seed of the background draw and of sampling")
-    p.add_argument("--permutations", type=int, default=None,
-                   help="orders of columns for the sampling method (default 64)")
+    p.add_argument(
+        "--row", type=int, required=True, help="the row to explain, counting data rows from 0"
+    )
+    p.add_argument(
+        "--background",
+        default=None,
+        metavar="K|all",
+        help=f"background rows drawn from the data file (default {DEFAULT_BACKGROUND}, "
+        "or every row when the file has fewer)",
+    )
+    p.add_argument(
+        "--method",
+        default="auto",
+        metavar="METHOD",
+        help="auto (default), tree, tree-reference (shap's TreeExplainer), linear, exact "
+        "or sampling",
+    )
+    p.add_argument(
+        "--form",
+        default="interventional",
+        metavar="FORM",
+        help="interventional (default: against the background) or path (tree methods only)",
+    )
+    p.add_argument(
+        "--seed", type=int, default=0, help="seed of the background draw and of sampling"
+    )
+    p.add_argument(
+        "--permutations",
+        type=int,
+        default=None,
+        help="orders of columns for the sampling method (default 64)",
+    )
     add_why_arguments(p)
     add_trust(p)
     add_json(p)
@@ -64,19 +87,36 @@ def background_size(text: str | None, n_rows: int) -> int | str:
 
 def run(args) -> int:
     if args.method not in METHOD_CHOICES:
-        raise InputError(f"unknown --method {args.method!r}; choose one of {', '.join(METHOD_CHOICES)}")
+        raise InputError(
+            f"unknown --method {args.method!r}; choose one of {', '.join(METHOD_CHOICES)}"
+        )
     loaded, adapter = open_model(args)
     data, _ = open_data(args, adapter)
     row = row_position(args, data)
     size = background_size(args.background, data.n_rows)
-    attributions = explain(adapter, data.frame.iloc[[row]], method=args.method, form=args.form,
-                           background=data.frame, background_size=size, seed=args.seed,
-                           permutations=args.permutations)
+    attributions = explain(
+        adapter,
+        data.frame.iloc[[row]],
+        method=args.method,
+        form=args.form,
+        background=data.frame,
+        background_size=size,
+        seed=args.seed,
+        permutations=args.permutations,
+    )
     payload = case_payload(adapter, data, row, attributions)
     payload["model"] = {"file": str(loaded.path), "sha256": loaded.sha256}
     payload["data"] = {"file": str(data.path), "sha256": data.sha256}
-    extend_payload(args, payload, adapter=adapter, loaded=loaded, data=data, row=row,
-                   attributions=attributions, background_size=size)
+    extend_payload(
+        args,
+        payload,
+        adapter=adapter,
+        loaded=loaded,
+        data=data,
+        row=row,
+        attributions=attributions,
+        background_size=size,
+    )
     if args.json:
         print_json(payload)
     else:
@@ -91,7 +131,9 @@ def _plain(value):
     return value.item() if isinstance(value, np.generic) else value
 
 
-def case_payload(adapter, data: Dataset | pd.DataFrame, row: int, attributions: Attributions) -> dict:
+def case_payload(
+    adapter, data: Dataset | pd.DataFrame, row: int, attributions: Attributions
+) -> dict:
     """Everything the case command shows for data row ``row`` (a position, counting from 0).
 
     ``attributions`` explains that row alone, or every row of ``data`` (then row ``row`` is used).
@@ -113,9 +155,13 @@ def case_payload(adapter, data: Dataset | pd.DataFrame, row: int, attributions: 
         },
         "base_value": float(attributions.base_value),
         "attributions": [
-            {"feature": attributions.features[j],
-             "value": _plain(x[attributions.features[j]].iloc[0]) if attributions.features[j] in x else None,
-             "contribution": float(contributions[j])}
+            {
+                "feature": attributions.features[j],
+                "value": _plain(x[attributions.features[j]].iloc[0])
+                if attributions.features[j] in x
+                else None,
+                "contribution": float(contributions[j]),
+            }
             for j in order
         ],
         "additivity_residual": float(attributions.residual[i]),
@@ -152,18 +198,25 @@ def print_case(p: dict) -> None:
         line += f"  (predicted {pred['response']:.6g})"
     print(line)
     bg = p["background"]
-    where = (f"mean over {bg['rows']} background rows, seed {bg['seed']}" if bg["rows"]
-             else "expectation over the training data's tree paths")
+    where = (
+        f"mean over {bg['rows']} background rows, seed {bg['seed']}"
+        if bg["rows"]
+        else "expectation over the training data's tree paths"
+    )
     print(f"base value  {p['base_value']:.6g}  ({where})")
     print(f"method      {p['method']} ({p['form']})")
     print()
-    rows = [{"feature": a["feature"], "value": _shown(a["value"]), "contribution": a["contribution"]}
-            for a in p["attributions"]]
+    rows = [
+        {"feature": a["feature"], "value": _shown(a["value"]), "contribution": a["contribution"]}
+        for a in p["attributions"]
+    ]
     print_table(rows, ["feature", "value", "contribution"])
     total = sum(a["contribution"] for a in p["attributions"])
     print()
-    print(f"base value + contributions = {p['base_value']:.6g} + {total:.6g} = "
-          f"{p['base_value'] + total:.6g}; additivity residual {p['additivity_residual']:.2g}")
+    print(
+        f"base value + contributions = {p['base_value']:.6g} + {total:.6g} = "
+        f"{p['base_value'] + total:.6g}; additivity residual {p['additivity_residual']:.2g}"
+    )
     for note in p["notes"]:
         print(f"note: {note}")
     print(p["caution"])

@@ -1,4 +1,7 @@
-"""Attributions (SHAP values) per raw input column; the public face is ``workbench.engine.attributions``."""
+"""Attributions (SHAP values) per raw input column.
+
+The public face is ``workbench.engine.attributions``; see README.md here.
+"""
 
 from workbench.engine.attribution.background import select_background
 from workbench.engine.attribution.explain import METHOD_CHOICES, explain

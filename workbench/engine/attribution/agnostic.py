@@ -44,14 +44,16 @@ def raw_columns(adapter, frame: pd.DataFrame) -> pd.DataFrame:
     else:
         if frame.shape[1] != len(adapter.input_columns):
             raise InputError(
-                f"the model takes {len(adapter.input_columns)} unnamed columns; the data has {frame.shape[1]}"
+                f"the model takes {len(adapter.input_columns)} unnamed columns; "
+                f"the data has {frame.shape[1]}"
             )
         out = frame.set_axis(adapter.input_columns, axis=1)
     return out.reset_index(drop=True)
 
 
-def coalition_values(adapter, rows, background, masks, *, progress=None, cancel=None,
-                     span=(0.0, 1.0)) -> np.ndarray:
+def coalition_values(
+    adapter, rows, background, masks, *, progress=None, cancel=None, span=(0.0, 1.0)
+) -> np.ndarray:
     """v[i, k] = mean over background rows of f(row i on columns masks[k], background elsewhere).
 
     ``rows`` and ``background`` are raw frames (see :func:`raw_columns`); ``masks`` is (K, p) bool.
@@ -71,8 +73,10 @@ def coalition_values(adapter, rows, background, masks, *, progress=None, cancel=
         k = (flat // n_bg) % n_coal
         b = flat % n_bg
         hybrid = pd.DataFrame(
-            {col: arr.take(np.where(masks[k, j], i, n + b))
-             for j, (col, arr) in enumerate(zip(pool.columns, arrays, strict=True))}
+            {
+                col: arr.take(np.where(masks[k, j], i, n + b))
+                for j, (col, arr) in enumerate(zip(pool.columns, arrays, strict=True))
+            }
         )
         sums += np.bincount(i * n_coal + k, weights=adapter.score(hybrid), minlength=n * n_coal)
         jobs.step(progress, cancel, lo + (hi - lo) * sl.stop / total, "scoring hybrid rows")
@@ -81,16 +85,19 @@ def coalition_values(adapter, rows, background, masks, *, progress=None, cancel=
 
 def shapley_weights(p: int) -> np.ndarray:
     """w[s] = s! (p - s - 1)! / p! for coalitions of size s = 0 .. p-1 (Shapley 1953)."""
-    return np.array([math.factorial(s) * math.factorial(p - s - 1) / math.factorial(p) for s in range(p)])
+    return np.array(
+        [math.factorial(s) * math.factorial(p - s - 1) / math.factorial(p) for s in range(p)]
+    )
 
 
-def exact_values(adapter, rows, background, base: float, output: np.ndarray, *,
-                 progress=None, cancel=None) -> np.ndarray:
+def exact_values(
+    adapter, rows, background, base: float, output: np.ndarray, *, progress=None, cancel=None
+) -> np.ndarray:
     """Shapley values (n, p) by enumerating every coalition of the p raw columns."""
     p = rows.shape[1]
     if p > EXACT_MAX_COLUMNS:
         raise InputError(
-            f"exact enumeration of {p} columns needs {2 ** p} coalitions per row; "
+            f"exact enumeration of {p} columns needs {2**p} coalitions per row; "
             f"use the sampling method (exact is offered up to {EXACT_MAX_COLUMNS} columns)"
         )
     full = (1 << p) - 1
@@ -99,7 +106,9 @@ def exact_values(adapter, rows, background, base: float, output: np.ndarray, *,
     v = np.empty((len(rows), full + 1))
     v[:, 0] = base
     v[:, full] = output
-    v[:, codes] = coalition_values(adapter, rows, background, masks, progress=progress, cancel=cancel)
+    v[:, codes] = coalition_values(
+        adapter, rows, background, masks, progress=progress, cancel=cancel
+    )
     weights = shapley_weights(p)
     all_codes = np.arange(full + 1)
     sizes = np.array([bin(c).count("1") for c in all_codes])
@@ -110,8 +119,18 @@ def exact_values(adapter, rows, background, base: float, output: np.ndarray, *,
     return phi
 
 
-def sampling_values(adapter, rows, background, base: float, output: np.ndarray, *,
-                    permutations: int, seed: int, progress=None, cancel=None) -> np.ndarray:
+def sampling_values(
+    adapter,
+    rows,
+    background,
+    base: float,
+    output: np.ndarray,
+    *,
+    permutations: int,
+    seed: int,
+    progress=None,
+    cancel=None,
+) -> np.ndarray:
     """Shapley values (n, p) estimated from ``permutations`` orders (antithetic pairs)."""
     p = rows.shape[1]
     gen = jobs.rng(seed)
@@ -128,7 +147,11 @@ def sampling_values(adapter, rows, background, base: float, output: np.ndarray, 
     v_prefix = v_unique[:, inverse.ravel()].reshape(len(rows), len(orders), max(p - 1, 0))
     n = len(rows)
     chain = np.concatenate(
-        [np.full((n, len(orders), 1), base), v_prefix, np.repeat(output[:, None, None], len(orders), 1)],
+        [
+            np.full((n, len(orders), 1), base),
+            v_prefix,
+            np.repeat(output[:, None, None], len(orders), 1),
+        ],
         axis=2,
     )
     gains = np.diff(chain, axis=2)  # (n, orders, p): gain of the column added at each position

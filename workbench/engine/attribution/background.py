@@ -24,14 +24,20 @@ def select_background(frame: pd.DataFrame, size: int | str = 100, *, seed: int =
         raise InputError("the background data has no rows")
     if isinstance(size, str):
         if size.strip().lower() != "all":
-            raise InputError(f"background size must be a whole number of rows or 'all', not {size!r}")
+            raise InputError(
+                f"background size must be a whole number of rows or 'all', not {size!r}"
+            )
         return frame
     if isinstance(size, bool) or not float(size).is_integer() or int(size) < 1:
-        raise InputError(f"background size must be a whole number of rows of at least 1, not {size!r}")
+        raise InputError(
+            f"background size must be a whole number of rows of at least 1, not {size!r}"
+        )
     size = int(size)
     if size > n:
         rows = "row" if n == 1 else "rows"
-        raise InputError(f"a background of {size} rows was asked for, but the data has only {n} {rows}")
+        raise InputError(
+            f"a background of {size} rows was asked for, but the data has only {n} {rows}"
+        )
     if size == n:
         return frame
     picked = jobs.rng(seed).choice(n, size=size, replace=False)

@@ -54,14 +54,18 @@ def explain(
     permutations : orders of columns for ``sampling`` (even; default 64).
     """
     if method not in METHOD_CHOICES:
-        raise InputError(f"unknown attribution method {method!r}; choose one of {', '.join(METHOD_CHOICES)}")
+        raise InputError(
+            f"unknown attribution method {method!r}; choose one of {', '.join(METHOD_CHOICES)}"
+        )
     if form not in FORMS:
         raise InputError(f"unknown attribution form {form!r}; choose interventional or path")
     rows = agnostic.raw_columns(adapter, frame)
     if len(rows) == 0:
         raise InputError("there are no rows to explain")
     reference = frame if background is None else background
-    run = _Run(adapter, rows, reference, form, background_size, seed, permutations, progress, cancel)
+    run = _Run(
+        adapter, rows, reference, form, background_size, seed, permutations, progress, cancel
+    )
     jobs.step(progress, cancel, 0.0, "choosing the attribution method")
     if method == "auto":
         result = run.auto()
@@ -71,12 +75,16 @@ def explain(
         result = run.linear(strict=True)
     else:
         if form == "path":
-            raise InputError(f"the path-dependent form exists for tree methods only, not for {method!r}")
+            raise InputError(
+                f"the path-dependent form exists for tree methods only, not for {method!r}"
+            )
         result = run.agnostic(method)
     worst = result.max_abs_residual
     if worst > _tolerance(result.output):
-        note = (f"additivity residual up to {worst:.3g}: these values do not add up to the output, "
-                "so the method did not explain this model exactly")
+        note = (
+            f"additivity residual up to {worst:.3g}: these values do not add up to the output, "
+            "so the method did not explain this model exactly"
+        )
         result = replace(result, notes=(*result.notes, note))
     jobs.step(progress, cancel, 1.0, "attributions done")
     return result
@@ -95,8 +103,9 @@ def _tolerance(output: np.ndarray) -> float:
 class _Run:
     """One explain() call: shared inputs, the background drawn once, notes gathered on the way."""
 
-    def __init__(self, adapter, rows, reference, form, background_size, seed, permutations,
-                 progress, cancel):
+    def __init__(
+        self, adapter, rows, reference, form, background_size, seed, permutations, progress, cancel
+    ):
         self.adapter = adapter
         self.rows = rows
         self.reference = reference
@@ -110,7 +119,7 @@ class _Run:
         self._bg = None
         self._output = None
 
-    # ---- shared pieces -----------------------------------------------------------------------
+    # ---- shared pieces -------------------------------------------------------------------------
     @property
     def background(self) -> pd.DataFrame:
         if self._bg is None:
@@ -125,46 +134,65 @@ class _Run:
         return self._output
 
     def _params(self, method: str, form: str, background_rows: int, permutations: int = 0) -> dict:
-        return dict(method=method, form=form, background_rows=background_rows, seed=self.seed,
-                    notes=tuple(self.notes), permutations=permutations)
+        return dict(
+            method=method,
+            form=form,
+            background_rows=background_rows,
+            seed=self.seed,
+            notes=tuple(self.notes),
+            permutations=permutations,
+        )
 
-    # ---- auto ------------------------------------------------------------------------------------
+    # ---- auto ----------------------------------------------------------------------------------
     def auto(self) -> Attributions:
         adapter = self.adapter
         fe = adapter.final_estimator
         name = type(fe).__name__
         model_space = None
         if not adapter.mappable:
-            self.notes.append("a pipeline step cannot be traced to raw columns, so the model-agnostic "
-                              "method explains the whole pipeline")
+            self.notes.append(
+                "a pipeline step cannot be traced to raw columns, so the model-agnostic "
+                "method explains the whole pipeline"
+            )
         elif tree.is_tree_model(fe):
             model_space = self.tree(reference_library=False, strict=False)
         elif linear.is_linear_model(fe):
             model_space = self.linear(strict=False)
         else:
-            self.notes.append(f"{name} is neither a tree ensemble nor a linear model: model-agnostic method")
+            self.notes.append(
+                f"{name} is neither a tree ensemble nor a linear model: model-agnostic method"
+            )
         if model_space is not None:
             worst = model_space.max_abs_residual
             if worst <= _tolerance(model_space.output):
                 return model_space
-            self.notes.append(f"{model_space.method} left an additivity residual of {worst:.3g}; "
-                              "the model-agnostic method is used instead")
+            self.notes.append(
+                f"{model_space.method} left an additivity residual of {worst:.3g}; "
+                "the model-agnostic method is used instead"
+            )
         if self.form == "path":
-            self.notes.append("the path-dependent form exists for tree SHAP only; interventional used")
+            self.notes.append(
+                "the path-dependent form exists for tree SHAP only; interventional used"
+            )
         p = len(adapter.input_columns)
         return self.agnostic("exact" if p <= agnostic.EXACT_AUTO_MAX_COLUMNS else "sampling")
 
-    # ---- tree ------------------------------------------------------------------------------------
+    # ---- tree ----------------------------------------------------------------------------------
     def tree(self, *, reference_library: bool, strict: bool) -> Attributions | None:
         adapter = self.adapter
         fe = adapter.final_estimator
         label = "tree-reference" if reference_library else "tree"
         if not tree.is_tree_model(fe):
-            raise InputError(f"method '{label}' needs a tree ensemble at the end of the model; "
-                             f"this is {adapter.model_type}")
+            raise InputError(
+                f"method '{label}' needs a tree ensemble at the end of the model; "
+                f"this is {adapter.model_type}"
+            )
         if not adapter.mappable:
-            return self._refuse(strict, f"method '{label}' needs every pipeline step traced to raw columns, "
-                                        "and one step cannot be; use exact or sampling")
+            return self._refuse(
+                strict,
+                f"method '{label}' needs every pipeline step traced to raw columns, "
+                "and one step cannot be; use exact or sampling",
+            )
         use_kernel = not reference_library and tree.kernel_supports(fe)
         if not use_kernel:
             problem = tree.shap_problem(adapter, self.form)
@@ -172,20 +200,28 @@ class _Run:
                 why = "our tree kernel is not available for it" if not reference_library else ""
                 detail = f"{problem}" + (f" and {why}" if why else "")
                 if strict:
-                    raise InputError(f"method '{label}' cannot explain this model: {detail}; "
-                                     "use auto, exact or sampling")
+                    raise InputError(
+                        f"method '{label}' cannot explain this model: {detail}; "
+                        "use auto, exact or sampling"
+                    )
                 self.notes.append(f"tree SHAP not used: {detail}")
                 return None
         try:
             z_rows, z_bg = self._model_space(use_kernel)
         except (ValueError, TypeError) as exc:
-            return self._refuse(strict, f"the model-space matrix could not be built ({exc}); "
-                                        "use exact or sampling")
+            return self._refuse(
+                strict, f"the model-space matrix could not be built ({exc}); use exact or sampling"
+            )
         jobs.step(self.progress, self.cancel, 0.1, "tree SHAP values")
         if use_kernel:
-            values, base = tree.kernel_values(adapter, z_rows, z_bg, self.form,
-                                              progress=_scaled(self.progress, 0.1, 0.95),
-                                              cancel=self.cancel)
+            values, base = tree.kernel_values(
+                adapter,
+                z_rows,
+                z_bg,
+                self.form,
+                progress=_scaled(self.progress, 0.1, 0.95),
+                cancel=self.cancel,
+            )
             method = f"tree-{'path' if self.form == 'path' else 'interventional'}"
         else:
             values, base = tree.shap_values(adapter, z_rows, z_bg, self.form)
@@ -196,7 +232,9 @@ class _Run:
         self._note_parts()
         raw_values = values @ adapter.column_map.aggregation_matrix()
         bg_rows = len(z_bg) if z_bg is not None else 0
-        return finish(adapter, raw_values, base_value, self.output, **self._params(method, self.form, bg_rows))
+        return finish(
+            adapter, raw_values, base_value, self.output, **self._params(method, self.form, bg_rows)
+        )
 
     def _model_space(self, use_kernel: bool):
         """Rows and background as the final estimator sees them (background None for path)."""
@@ -211,7 +249,9 @@ class _Run:
                 raise
             est = adapter.final_estimator
             z_rows = tree.kernel_model_matrix(est, adapter.prepare(self.rows))
-            z_bg = tree.kernel_model_matrix(est, adapter.prepare(self.background)) if want_bg else None
+            z_bg = (
+                tree.kernel_model_matrix(est, adapter.prepare(self.background)) if want_bg else None
+            )
         return z_rows, z_bg
 
     def _note_parts(self) -> None:
@@ -221,52 +261,84 @@ class _Run:
         if split:
             shown = ", ".join(split[:5]) + (" ..." if len(split) > 5 else "")
             self.notes.append(
-                f"{shown}: each is the sum of the SHAP values of its model-space parts (local accuracy "
+                f"{shown}: each is the sum of the SHAP values of its model-space parts "
+                "(local accuracy "
                 "holds; for a tree this is not the same as one player per raw column)"
             )
 
-    # ---- linear ----------------------------------------------------------------------------------
+    # ---- linear --------------------------------------------------------------------------------
     def linear(self, *, strict: bool) -> Attributions | None:
         adapter = self.adapter
         fe = adapter.final_estimator
         if not linear.is_linear_model(fe):
-            raise InputError(f"method 'linear' needs a linear model at the end of the model; "
-                             f"this is {adapter.model_type}")
+            raise InputError(
+                f"method 'linear' needs a linear model at the end of the model; "
+                f"this is {adapter.model_type}"
+            )
         if not adapter.mappable:
-            return self._refuse(strict, "method 'linear' needs every pipeline step traced to raw columns, "
-                                        "and one step cannot be; use exact or sampling")
+            return self._refuse(
+                strict,
+                "method 'linear' needs every pipeline step traced to raw columns, "
+                "and one step cannot be; use exact or sampling",
+            )
         if self.form == "path":
             if strict:
-                raise InputError("the path-dependent form exists for tree methods only; use interventional")
-            self.notes.append("the path-dependent form exists for tree SHAP only; interventional used")
+                raise InputError(
+                    "the path-dependent form exists for tree methods only; use interventional"
+                )
+            self.notes.append(
+                "the path-dependent form exists for tree SHAP only; interventional used"
+            )
         z_rows = adapter.transform(self.rows)
         z_bg = adapter.transform(self.background)
         values, base = linear.linear_values(adapter, z_rows, z_bg)
         raw_values = values @ adapter.column_map.aggregation_matrix()
-        return finish(adapter, raw_values, base, self.output,
-                      **self._params("linear", "interventional", len(z_bg)))
+        return finish(
+            adapter,
+            raw_values,
+            base,
+            self.output,
+            **self._params("linear", "interventional", len(z_bg)),
+        )
 
-    # ---- model-agnostic ---------------------------------------------------------------------------
+    # ---- model-agnostic ------------------------------------------------------------------------
     def agnostic(self, method: str) -> Attributions:
         adapter, rows, bg = self.adapter, self.rows, self.background
         base = float(np.mean(adapter.score(bg)))
         span = dict(progress=_scaled(self.progress, 0.05, 0.95), cancel=self.cancel)
         if method == "exact":
             values = agnostic.exact_values(adapter, rows, bg, base, self.output, **span)
-            return finish(adapter, values, base, self.output,
-                          **self._params("exact", "interventional", len(bg)))
-        permutations = agnostic.DEFAULT_PERMUTATIONS if self.permutations is None else int(self.permutations)
+            return finish(
+                adapter,
+                values,
+                base,
+                self.output,
+                **self._params("exact", "interventional", len(bg)),
+            )
+        permutations = (
+            agnostic.DEFAULT_PERMUTATIONS if self.permutations is None else int(self.permutations)
+        )
         if permutations < 2:
             raise InputError(f"sampling needs at least 2 permutations, not {permutations}")
         if permutations % 2:
             permutations += 1
-            self.notes.append(f"permutations rounded up to {permutations} (they come in antithetic pairs)")
-        self.notes.append(f"sampling: {permutations} permutations ({permutations // 2} antithetic pairs), "
-                          f"seed {self.seed}")
-        values = agnostic.sampling_values(adapter, rows, bg, base, self.output,
-                                          permutations=permutations, seed=self.seed, **span)
-        return finish(adapter, values, base, self.output,
-                      **self._params("sampling", "interventional", len(bg), permutations))
+            self.notes.append(
+                f"permutations rounded up to {permutations} (they come in antithetic pairs)"
+            )
+        self.notes.append(
+            f"sampling: {permutations} permutations ({permutations // 2} antithetic pairs), "
+            f"seed {self.seed}"
+        )
+        values = agnostic.sampling_values(
+            adapter, rows, bg, base, self.output, permutations=permutations, seed=self.seed, **span
+        )
+        return finish(
+            adapter,
+            values,
+            base,
+            self.output,
+            **self._params("sampling", "interventional", len(bg), permutations),
+        )
 
     def _refuse(self, strict: bool, message: str):
         if strict:

@@ -98,10 +98,14 @@ def shap_problem(adapter, form: str) -> str | None:
     est = adapter.final_estimator
     name = type(est).__name__
     if has_categorical_splits(est):
-        return f"shap's TreeExplainer reads the native categorical splits of {name} as numeric thresholds"
+        return (
+            f"shap's TreeExplainer reads the native categorical splits of {name} "
+            "as numeric thresholds"
+        )
     if isinstance(est, HistGradientBoostingClassifier) and form == "interventional":
         return (
-            "shap's interventional TreeExplainer gives wrong values for HistGradientBoostingClassifier "
+            "shap's interventional TreeExplainer gives wrong values for "
+            "HistGradientBoostingClassifier "
             "(it fails its own additivity check)"
         )
     if isinstance(est, GradientBoostingClassifier) and len(adapter.classes) > 2:
@@ -137,8 +141,9 @@ def kernel_values(adapter, z_rows, z_background, form: str, *, progress=None, ca
     k = kernel()
     ensemble = kernel_ensemble(adapter.final_estimator)
     background = z_background if form == "interventional" else None
-    result = k.shap_values(ensemble, z_rows, method=form, background=background,
-                           progress=progress, cancel=cancel)
+    result = k.shap_values(
+        ensemble, z_rows, method=form, background=background, progress=progress, cancel=cancel
+    )
     return _as_outputs(result.values, result.base_value, len(z_rows), z_rows.shape[1])
 
 
@@ -151,7 +156,9 @@ def shap_values(adapter, z_rows, z_background, form: str):
         key = ("shap", "path")
 
         def build():
-            return shap.TreeExplainer(est, feature_perturbation="tree_path_dependent", model_output="raw")
+            return shap.TreeExplainer(
+                est, feature_perturbation="tree_path_dependent", model_output="raw"
+            )
     else:
         key = ("shap", "interventional", _digest(z_background))
 
@@ -184,7 +191,9 @@ def pick_output(adapter, values: np.ndarray, base: np.ndarray):
     n_out = values.shape[2]
     if n_out > 1:
         if not adapter.classes or n_out != len(adapter.classes):
-            raise ValueError(f"tree SHAP gave {n_out} outputs for a model with classes {adapter.classes}")
+            raise ValueError(
+                f"tree SHAP gave {n_out} outputs for a model with classes {adapter.classes}"
+            )
         k = adapter.class_index
         return values[:, :, k], float(base[k])
     v, b = values[:, :, 0], float(base[0])
