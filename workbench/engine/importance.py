@@ -20,6 +20,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
+from scipy.stats import rankdata
 
 from workbench.engine.adapter import ModelAdapter
 from workbench.engine.effects import CHUNK_ROWS, model_frame, stacked_frame
@@ -89,6 +90,16 @@ def _targets(adapter: ModelAdapter, y, n: int) -> np.ndarray:
     return series.to_numpy(dtype=float)
 
 
+def auc_by_ranks(positive: np.ndarray, score: np.ndarray) -> float:
+    """Unweighted AUC as the Mann-Whitney statistic U / (n1 n0) from mid-ranks (ties count one
+    half; Hanley and McNeil 1982, Radiology 143:29-36). Equal to roc_auc_score, without its
+    input checks, which cost more than the ranking when called once per shuffle."""
+    ranks = rankdata(score)
+    n1 = int(positive.sum())
+    n0 = positive.size - n1
+    return float((ranks[positive].sum() - n1 * (n1 + 1) / 2.0) / (n1 * n0))
+
+
 def _units(features: list[str], groups: Sequence[Sequence[str]] | None) -> list[list[str]]:
     units = [[f] for f in features]
     for g in groups or ():
@@ -148,8 +159,14 @@ def permutation_importance(adapter: ModelAdapter, frame: pd.DataFrame, y, *, met
                          "(choose more rows or another metric)")
     respond = adapter.probabilities if adapter.task == "multiclass" else adapter.response
 
-    def evaluate(response) -> float:
-        return scorer(target, response, weight)
+    if name == "auc" and adapter.task == "binary" and weight is None:
+        positive = target == 1
+
+        def evaluate(response) -> float:
+            return auc_by_ranks(positive, response)
+    else:
+        def evaluate(response) -> float:
+            return scorer(target, response, weight)
 
     baseline = evaluate(respond(x))
     units = _units(list(x.columns), groups)

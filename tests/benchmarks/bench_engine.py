@@ -1,0 +1,95 @@
+"""Speed of permutation importance, PD/ICE and H-statistics, as ratios measured in the same run.
+
+Run: ``python tests/benchmarks/bench_engine.py [rows] [features]`` (defaults 2000 rows, 8 features).
+Each figure is the min / median / max of 5 runs in seconds; ratios use the medians.
+
+- permutation importance vs one batched prediction of the same total rows (the floor: every
+  shuffled copy must be scored once) and vs sklearn.inspection.permutation_importance;
+- PD + ICE vs sklearn.inspection.partial_dependence(kind="both", method="brute") on the same grid;
+- H-statistics of a 20-feature model with the default sample and screen (time only).
+"""
+
+from __future__ import annotations
+
+import statistics
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from sklearn.ensemble import HistGradientBoostingClassifier
+from sklearn.inspection import partial_dependence as sk_partial_dependence
+from sklearn.inspection import permutation_importance as sk_permutation_importance
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
+
+from workbench.engine.adapter import ModelAdapter  # noqa: E402
+from workbench.engine.effects import model_frame, partial_dependence, stacked_frame  # noqa: E402
+from workbench.engine.importance import permutation_importance  # noqa: E402
+from workbench.engine.interactions import h_statistics  # noqa: E402
+
+RUNS = 5
+REPEATS = 5
+
+
+def timed(fn, runs: int = RUNS) -> tuple[float, float, float]:
+    times = []
+    for _ in range(runs):
+        start = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - start)
+    return min(times), statistics.median(times), max(times)
+
+
+def show(name: str, t: tuple[float, float, float]) -> None:
+    print(f"{name:<52} min {t[0]:8.3f}  median {t[1]:8.3f}  max {t[2]:8.3f} s", flush=True)
+
+
+def problem(n: int, p: int, seed: int = 0):
+    rng = np.random.default_rng(seed)
+    X = pd.DataFrame({f"x{j}": rng.normal(size=n) for j in range(p)})
+    logit = X.iloc[:, : min(p, 5)].sum(axis=1) + X["x0"] * X["x1"]
+    y = (rng.uniform(size=n) < 1 / (1 + np.exp(-logit))).astype(int)
+    model = HistGradientBoostingClassifier(max_iter=100, random_state=0).fit(X, y)
+    return model, X, y
+
+
+def main(n: int = 2000, p: int = 8) -> None:
+    print(f"{n} rows, {p} features, HistGradientBoostingClassifier(max_iter=100); {RUNS} runs each")
+    model, X, y = problem(n, p)
+    adapter = ModelAdapter(model)
+
+    ours = timed(lambda: permutation_importance(adapter, X, y, metric="auc", repeats=REPEATS))
+    x = model_frame(adapter, X)
+    copies = p * REPEATS
+    stacked = stacked_frame(x, np.tile(np.arange(n), copies))
+    floor = timed(lambda: adapter.response(stacked))
+    theirs = timed(lambda: sk_permutation_importance(model, X, y, scoring="roc_auc",
+                                                     n_repeats=REPEATS, random_state=0))
+    show(f"workbench permutation_importance ({copies} shuffles)", ours)
+    show(f"one batched prediction of {copies * n} rows", floor)
+    show("sklearn permutation_importance", theirs)
+    print(f"  ratio to one batched prediction: {ours[1] / floor[1]:.2f}")
+    print(f"  ratio to sklearn:                {ours[1] / theirs[1]:.2f}")
+
+    curve = partial_dependence(adapter, X, "x0", grid_size=20, ice_rows=None)
+    grid = curve.grid
+    ours = timed(lambda: partial_dependence(adapter, X, "x0", grid=grid, ice_rows=None,
+                                            scale="response"))
+    theirs = timed(lambda: sk_partial_dependence(model, X, ["x0"], kind="both", method="brute",
+                                                 response_method="predict_proba",
+                                                 custom_values={"x0": grid}))
+    show(f"workbench partial_dependence + ICE ({grid.size} points)", ours)
+    show("sklearn partial_dependence kind=both brute", theirs)
+    print(f"  ratio to sklearn:                {ours[1] / theirs[1]:.2f}")
+
+    model20, X20, _ = problem(n, 20, seed=1)
+    adapter20 = ModelAdapter(model20)
+    t = timed(lambda: h_statistics(adapter20, X20, sample=300, screen=8), runs=3)
+    show("workbench h_statistics, 20 features, sample 300, screen 8 (3 runs)", t)
+
+
+if __name__ == "__main__":
+    args = [int(a) for a in sys.argv[1:3]]
+    main(*args)
