@@ -1,3 +1,13 @@
 """The levels of the rail; importing this package registers them all."""
 
-from workbench.ui.levels import base, case, effect, pairs, portfolio, ranking, versions  # noqa: F401
+from workbench.ui.levels import (  # noqa: F401
+    base,
+    case,
+    checks,
+    dossier,
+    effect,
+    pairs,
+    portfolio,
+    ranking,
+    versions,
+)
