@@ -30,67 +30,139 @@ LINEAR = 0
 CLASSIC = 1
 
 
+@numba.njit(cache=True, nogil=True, parallel=True)
+def linear_tables(tree_start, parent, prev_same, r_comb, tree_m, tree_algo, q_nodes, q_weights):
+    """Row-independent factors of the linear sweep, per edge c and per state of (o_prev, o_c).
+
+    With A_o(t) = r_comb (1 - t) + o t (the edge's factor when the path is followed, o = 1, or
+    not, o = 0) and the previous same-feature edge p (its factor divided out):
+      D[c, s, q] = A_oc(t_q) / A_op(t_q)                       (down sweep multiplier)
+      C[c, s, q] = w_q [(o_c - r_c) / A_oc(t_q) - (o_p - r_p) / A_op(t_q)]  (share weights)
+    for s = 0: (o_p, o_c) = (1, 1); s = 1: (1, 0); s = 2: (0, 0). (0, 1) cannot happen.
+    """
+    n = parent.size
+    m_max = q_nodes.shape[1]
+    D = np.zeros((n, 3, m_max))
+    C = np.zeros((n, 3, m_max))
+    for t in numba.prange(tree_start.size - 1):
+        if tree_algo[t] != LINEAR:
+            continue
+        m = tree_m[t]
+        tq = q_nodes[m]
+        wq = q_weights[m]
+        for c in range(tree_start[t] + 1, tree_start[t + 1]):
+            pe = prev_same[c]
+            rc = r_comb[c]
+            rp = r_comb[pe] if pe >= 0 else 1.0
+            for s in range(3):
+                oc = 1.0 if s == 0 else 0.0
+                op = 0.0 if s == 2 else 1.0
+                for q in range(m):
+                    ac = rc * (1.0 - tq[q]) + oc * tq[q]
+                    if pe >= 0:
+                        ap = rp * (1.0 - tq[q]) + op * tq[q]
+                        D[c, s, q] = ac / ap
+                        C[c, s, q] = wq[q] * ((oc - rc) / ac - (op - rp) / ap)
+                    else:
+                        D[c, s, q] = ac
+                        C[c, s, q] = wq[q] * (oc - rc) / ac
+    return D, C
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _pick(s, a0, a1, a2):
+    return a0 if s == 0 else (a1 if s == 1 else a2)
+
+
 @numba.njit(cache=True, nogil=True)
-def _linear_tree(x, t, route, parent, prev_same, r_comb, values, tree_start, target, n_out,
-                 tq, wq, m, phi, o, Fv, G, H):
+def _linear_block(X, r0, R, t, route, parent, prev_same, values, tree_start, target, n_out, m,
+                  D, C, acc, state, G, H, sh):
+    """One tree, R rows at once (the row index innermost, so the arithmetic vectorises).
+
+    acc[f, k, r] += share of feature f in output k for row r0 + r.
+    """
     left, right, feature, threshold, missing_left, cat_index, cat_left, cat_known = route
     start = tree_start[t]
     end = tree_start[t + 1]
     kv = n_out if target < 0 else 1
     for q in range(m):
-        G[0, q] = 1.0
-    o[0] = 1
+        for r in range(R):
+            G[0, q, r] = 1.0
+    # down: G[c] = product over the distinct path features of their factor at the nodes t_q
     for n in range(start, end):
-        ln = n - start
         if left[n] < 0:
-            for q in range(m):
-                g = G[ln, q]
-                for k in range(kv):
-                    H[ln, q, k] = g * values[n, k]
             continue
+        ln = n - start
         for q in range(m):
             for k in range(kv):
-                H[ln, q, k] = 0.0
-        gl = goes_left(n, x[feature[n]], threshold, missing_left, cat_index, cat_left, cat_known)
-        for side in range(2):
-            c = left[n] if side == 0 else right[n]
-            sat = gl if side == 0 else not gl
-            lc = c - start
-            pe = prev_same[c]
-            if pe >= 0:
-                sat = sat and o[pe - start] == 1
-            o[lc] = 1 if sat else 0
-            r = r_comb[c]
-            for q in range(m):
-                f = r * (1.0 - tq[q])
-                if sat:
-                    f += tq[q]
-                Fv[lc, q] = f
-                if pe >= 0:
-                    G[lc, q] = G[ln, q] * f / Fv[pe - start, q]
-                else:
-                    G[lc, q] = G[ln, q] * f
+                for r in range(R):
+                    H[ln, q, k, r] = 0.0
+        f = feature[n]
+        cl = left[n]
+        cr = right[n]
+        lcl = cl - start
+        lcr = cr - start
+        pe = prev_same[cl]  # the same for both children
+        for r in range(R):
+            gl = goes_left(n, X[r0 + r, f], threshold, missing_left, cat_index, cat_left,
+                           cat_known)
+            if pe >= 0 and state[pe - start, r] != 0:
+                state[lcl, r] = 2  # an earlier split on f was already not followed
+                state[lcr, r] = 2
+            elif gl:
+                state[lcl, r] = 0
+                state[lcr, r] = 1
+            else:
+                state[lcl, r] = 1
+                state[lcr, r] = 0
+        for q in range(m):
+            dl0 = D[cl, 0, q]
+            dl1 = D[cl, 1, q]
+            dl2 = D[cl, 2, q]
+            dr0 = D[cr, 0, q]
+            dr1 = D[cr, 1, q]
+            dr2 = D[cr, 2, q]
+            for r in range(R):
+                g = G[ln, q, r]
+                G[lcl, q, r] = g * _pick(state[lcl, r], dl0, dl1, dl2)
+                G[lcr, q, r] = g * _pick(state[lcr, r], dr0, dr1, dr2)
+    # up: H[n] = sum over the leaves below n of value * G[leaf]; each edge adds its share
     for c in range(end - 1, start, -1):
         lc = c - start
-        p = parent[c]
-        lp = p - start
-        f_idx = feature[p]
-        a = o[lc] - r_comb[c]
-        pe = prev_same[c]
-        for k in range(kv):
-            s = 0.0
+        lp = parent[c] - start
+        f = feature[parent[c]]
+        if left[c] < 0:
+            for r in range(R):
+                sh[r] = 0.0
             for q in range(m):
-                s += wq[q] * H[lc, q, k] / Fv[lc, q]
-            share = a * s
-            if pe >= 0:
-                s2 = 0.0
-                lpe = pe - start
+                c0 = C[c, 0, q]
+                c1 = C[c, 1, q]
+                c2 = C[c, 2, q]
+                for r in range(R):
+                    sh[r] += G[lc, q, r] * _pick(state[lc, r], c0, c1, c2)
+            for k in range(kv):
+                v = values[c, k]
+                kk = target if target >= 0 else k
+                for r in range(R):
+                    acc[f, kk, r] += v * sh[r]
                 for q in range(m):
-                    s2 += wq[q] * H[lc, q, k] / Fv[lpe, q]
-                share -= (o[lpe] - r_comb[pe]) * s2
-            phi[f_idx, target if target >= 0 else k] += share
-            for q in range(m):
-                H[lp, q, k] += H[lc, q, k]
+                    for r in range(R):
+                        H[lp, q, k, r] += v * G[lc, q, r]
+        else:
+            for k in range(kv):
+                kk = target if target >= 0 else k
+                for r in range(R):
+                    sh[r] = 0.0
+                for q in range(m):
+                    c0 = C[c, 0, q]
+                    c1 = C[c, 1, q]
+                    c2 = C[c, 2, q]
+                    for r in range(R):
+                        h = H[lc, q, k, r]
+                        sh[r] += h * _pick(state[lc, r], c0, c1, c2)
+                        H[lp, q, k, r] += h
+                for r in range(R):
+                    acc[f, kk, r] += sh[r]
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
@@ -210,34 +282,43 @@ def _classic_tree(root, x, route, cover, values, target, n_out, phi, pf, pz, po,
 
 @numba.njit(cache=True, nogil=True, parallel=True)
 def path_shap(X, rows_per_block, route, parent, cover, values, tree_start, tree_target,
-              tree_algo, tree_m, prev_same, r_comb, max_nodes, max_depth, q_nodes, q_weights,
-              out):
+              tree_algo, tree_m, prev_same, D, C, max_nodes, max_depth, out):
     """out[i] (n_features, n_outputs) += path-dependent SHAP values of row i, all trees."""
     n = X.shape[0]
+    n_feat = out.shape[1]
     n_out = out.shape[2]
     n_trees = tree_start.size - 1
-    m_max = max(1, q_nodes.shape[1])
-    n_blocks = (n + rows_per_block - 1) // rows_per_block
+    m_max = max(1, D.shape[2])
+    B = rows_per_block
+    n_blocks = (n + B - 1) // B
     for b in numba.prange(n_blocks):
-        o = np.zeros(max_nodes, np.int64)
-        Fv = np.ones((max_nodes, m_max))
-        G = np.ones((max_nodes, m_max))
-        H = np.zeros((max_nodes, m_max, n_out))
+        r0 = b * B
+        R = min(n, r0 + B) - r0
+        state = np.zeros((max_nodes, B), np.int64)
+        G = np.ones((max_nodes, m_max, B))
+        H = np.zeros((max_nodes, m_max, n_out, B))
+        sh = np.zeros(B)
+        acc = np.zeros((n_feat, n_out, B))
         levels = max_depth + 2
         pf = np.zeros((levels, levels), np.int64)
         pz = np.zeros((levels, levels))
         po = np.zeros((levels, levels))
         pw = np.zeros((levels, levels))
         stack = (np.zeros((2 * levels + 2, 4), np.int64), np.zeros((2 * levels + 2, 2)))
-        for i in range(b * rows_per_block, min(n, (b + 1) * rows_per_block)):
-            x = X[i]
-            phi = out[i]
-            for t in range(n_trees):
-                if tree_algo[t] == LINEAR:
-                    m = tree_m[t]
-                    _linear_tree(x, t, route, parent, prev_same, r_comb, values, tree_start,
-                                 tree_target[t], n_out, q_nodes[m], q_weights[m], m, phi,
-                                 o, Fv, G, H)
-                else:
-                    _classic_tree(tree_start[t], x, route, cover, values, tree_target[t],
-                                  n_out, phi, pf, pz, po, pw, stack)
+        phi = np.zeros((n_feat, n_out))
+        for t in range(n_trees):
+            if tree_algo[t] == LINEAR:
+                _linear_block(X, r0, R, t, route, parent, prev_same, values, tree_start,
+                              tree_target[t], n_out, tree_m[t], D, C, acc, state, G, H, sh)
+            else:
+                for r in range(R):
+                    phi[:, :] = 0.0
+                    _classic_tree(tree_start[t], X[r0 + r], route, cover, values,
+                                  tree_target[t], n_out, phi, pf, pz, po, pw, stack)
+                    for f in range(n_feat):
+                        for k in range(n_out):
+                            acc[f, k, r] += phi[f, k]
+        for r in range(R):
+            for f in range(n_feat):
+                for k in range(n_out):
+                    out[r0 + r, f, k] += acc[f, k, r]

@@ -5,6 +5,7 @@ from __future__ import annotations
 import time
 from collections import Counter
 
+import numba
 import numpy as np
 
 from workbench.engine import jobs
@@ -19,7 +20,8 @@ from workbench.engine.treeshap.ensemble import TreeEnsemble
 from workbench.engine.treeshap.results import TreeInteractionResult, TreeShapResult
 
 CHUNK_ROWS = 1000  # rows between progress / cancel checks
-BLOCK_ROWS = 16  # rows per parallel task (scratch memory is allocated per task)
+BLOCK_ROWS = 64  # most rows swept through a tree together (the arithmetic vectorises over them)
+BLOCK_SCRATCH = 16 * 2**20  # bytes of sweep tables per task that set a smaller block
 LINEAR_SCRATCH_LIMIT = 64 * 2**20  # bytes of sweep tables per task before a tree goes classic
 _Q_NODES, _Q_WEIGHTS = _prepare.quadrature_table()
 _ALGORITHM_NAMES = ("linear", "classic")
@@ -54,6 +56,16 @@ def choose_algorithms(ens: TreeEnsemble, algorithm: str = "auto") -> np.ndarray:
     classic = (ens.paths.tree_zero_cover == 1) | (m > _prepare.MAX_QUADRATURE)
     classic |= scratch > LINEAR_SCRATCH_LIMIT
     return classic.astype(np.int64)
+
+
+def _block_rows(ens: TreeEnsemble, n_rows: int, m_max: int) -> int:
+    """Rows per parallel task: as many as fit the scratch budget, but enough tasks for all
+    threads."""
+    max_nodes = int(np.diff(ens.tree_start).max())
+    per_row = max_nodes * m_max * (ens.n_outputs + 1) * 8
+    block = int(np.clip(BLOCK_SCRATCH // max(per_row, 1), 4, BLOCK_ROWS))
+    threads = numba.get_num_threads()
+    return max(1, min(block, -(-n_rows // threads)))
 
 
 def _summary(algos: list[str]) -> str:
@@ -103,12 +115,14 @@ def shap_values(ens: TreeEnsemble, X, *, method: str = "path", background=None,
         q_nodes = np.ascontiguousarray(_Q_NODES[: m_max + 1, :m_max])
         q_weights = np.ascontiguousarray(_Q_WEIGHTS[: m_max + 1, :m_max])
         max_nodes = int(np.diff(ens.tree_start).max())
+        D, C = _kernel_path.linear_tables(ens.tree_start, ens.parent, ens.paths.prev_same,
+                                          ens.paths.r_comb, tree_m, algo, q_nodes, q_weights)
         for sl in jobs.chunk_slices(n, CHUNK_ROWS):
             jobs.step(progress, cancel, sl.start / max(n, 1), "tree SHAP values")
-            _kernel_path.path_shap(X[sl], BLOCK_ROWS, route, ens.parent, ens.cover, ens.values,
+            _kernel_path.path_shap(X[sl], _block_rows(ens, sl.stop - sl.start, m_max), route, ens.parent, ens.cover, ens.values,
                                    ens.tree_start, ens.tree_target, algo, tree_m,
-                                   ens.paths.prev_same, ens.paths.r_comb, max_nodes,
-                                   ens.max_depth, q_nodes, q_weights, out[sl])
+                                   ens.paths.prev_same, D, C, max_nodes, ens.max_depth,
+                                   out[sl])
         names = [_ALGORITHM_NAMES[a] for a in algo]
         base = ens.offset + _expected_per_output(ens)
         bg_rows = 0
