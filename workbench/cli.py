@@ -27,6 +27,7 @@ COMMANDS = [
     "compare",
     "audit",
     "dossier",
+    "batch",
 ]
 
 

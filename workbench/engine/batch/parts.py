@@ -82,6 +82,7 @@ class WorkFolder:
         if self.folder.is_dir():
             old = _read_manifest(manifest)
             if old is not None and old.get("fingerprint") == self.fingerprint:
+                self.header = {**self.header, "background": old.get("background", {})}
                 self.chunks = {int(k): v for k, v in old.get("chunks", {}).items()
                                if (self.folder / v["file"]).is_file()
                                and (self.folder / v["rejects"]).is_file()}
@@ -110,14 +111,22 @@ class WorkFolder:
         _atomic_bytes(self.folder / MANIFEST, json.dumps(body, indent=1, sort_keys=True).encode())
 
     # ---- background -----------------------------------------------------------------------------
-    def saved_background(self) -> pd.DataFrame | None:
+    def saved_background(self) -> tuple[pd.DataFrame, tuple[int, ...], tuple[str, ...]] | None:
+        """(rows, their positions in the input, notes) of the stored background, or None."""
         path = self.folder / BACKGROUND
-        return pd.read_parquet(path) if path.is_file() else None
+        info = self.header.get("background") or {}
+        if not path.is_file() or "positions" not in info:
+            return None
+        return (pd.read_parquet(path), tuple(int(i) for i in info["positions"]),
+                tuple(info.get("notes", ())))
 
-    def save_background(self, frame: pd.DataFrame) -> pd.DataFrame:
-        """Store the background and return it as read back, so first and resumed runs agree."""
+    def save_background(self, frame: pd.DataFrame, positions, notes) -> tuple:
+        """Store the background; return it as read back, so first and resumed runs agree."""
         write_table_atomic(pa.Table.from_pandas(frame, preserve_index=False),
                            self.folder / BACKGROUND)
+        self.header["background"] = {"positions": [int(i) for i in positions],
+                                     "notes": list(notes)}
+        self._save()
         return self.saved_background()
 
     # ---- parts ----------------------------------------------------------------------------------

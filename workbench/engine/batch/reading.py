@@ -108,8 +108,10 @@ class ChunkReader:
 
     def fraction_read(self) -> float:
         """How much of the file has been read (bytes for CSV); 0 before, 1 after."""
-        if self._handle is None or self._handle.closed:
+        if self._handle is None:
             return 0.0
+        if self._handle.closed:
+            return 1.0
         size = max(self.path.stat().st_size, 1)
         return min(self._handle.tell() / size, 1.0)
 

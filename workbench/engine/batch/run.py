@@ -68,6 +68,9 @@ class BatchProgress:
     rows_resumed: int
     rows_rejected: int
     chunks_done: int
+    seconds: float = 0.0  # since the first chunk of this run was sent
+
+
 
 
 @dataclass(frozen=True)
@@ -93,6 +96,7 @@ class BatchSummary:
     settings: BatchSettings
     started_over: str | None = None
     notes: tuple[str, ...] = ()
+    background_positions: tuple[int, ...] = ()  # row positions of the background rows
 
     def as_dict(self) -> dict:
         return {"output": str(self.output), "rejects": None if self.rejects is None else str(self.rejects),
@@ -103,7 +107,7 @@ class BatchSummary:
                 "seed": self.seed, "executor": self.executor, "seconds": self.seconds,
                 "input_sha256": self.input_sha256, "model_sha256": self.model_sha256,
                 "settings": self.settings.as_dict(), "started_over": self.started_over,
-                "notes": list(self.notes)}
+                "notes": list(self.notes), "background_positions": list(self.background_positions)}
 
 
 def check_settings(adapter, settings: BatchSettings) -> BatchSettings:
@@ -170,7 +174,8 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
         say(f"resuming: {len(work.chunks)} chunk(s), {work.resumed_rows:,} rows already written "
             f"in {work.folder}")
 
-    background, notes = _background(adapter, reader, settings, work, progress, cancel)
+    background, background_positions, notes = _background(adapter, reader, settings, work,
+                                                           progress, cancel)
     method, form, method_notes, base_value = _choose_method(adapter, background, settings)
     settings = replace(settings, form=form)
     notes += method_notes
@@ -186,13 +191,17 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
     written_now = 0
     chunk_notes: list[str] = []
 
+    first_sent = None
+
     def todo():
-        nonlocal total_read
+        nonlocal total_read, first_sent
         for chunk in reader:
             total_read = chunk.stop
             if chunk.index in work.chunks:
                 continue
             jobs.step(progress, cancel, _fraction(reader, work, total_read), "explaining rows")
+            if first_sent is None:
+                first_sent = time.perf_counter()
             yield ChunkJob(chunk.index, chunk.start, chunk.frame, method)
 
     with executor:
@@ -204,7 +213,8 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
             chunk_notes.extend(n for n in result.notes if n not in chunk_notes)
             written_now += 1
             if watch is not None:
-                watch(_status(reader, work, total_read, resumed_rows))
+                watch(_status(reader, work, total_read, resumed_rows,
+                              time.perf_counter() - (first_sent or started)))
             jobs.step(progress, cancel, _fraction(reader, work, total_read), "explaining rows")
             if stop_after_chunks is not None and written_now >= stop_after_chunks:
                 raise RuntimeError(f"stopped after {written_now} chunk(s) (test hook)")
@@ -216,6 +226,7 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
     resumed = len(work.chunks) - written_now
     info = {"settings": settings.as_dict(), "method": method, "form": settings.form,
             "background_rows": len(background), "base_value": base_value,
+            "background_positions": list(background_positions),
             "input_sha256": input_sha, "model_sha256": model_sha256,
             "output_kind": adapter.output_kind, "output_units": adapter.output_units,
             **(metadata or {})}
@@ -226,7 +237,7 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
                         resumed, method, settings.form, len(background), base_value,
                         settings.seed, executor.name, time.perf_counter() - started, input_sha,
                         model_sha256, settings, work.started_over,
-                        tuple(dict.fromkeys([*notes, *chunk_notes])))
+                        tuple(dict.fromkeys([*notes, *chunk_notes])), background_positions)
 
 
 def _fraction(reader, work, rows_seen: int) -> float:
@@ -235,7 +246,7 @@ def _fraction(reader, work, rows_seen: int) -> float:
     return reader.fraction_read()
 
 
-def _status(reader, work, rows_seen: int, resumed_rows: int) -> BatchProgress:
+def _status(reader, work, rows_seen: int, resumed_rows: int, seconds: float) -> BatchProgress:
     done = sum(c["stop"] - c["start"] for c in work.chunks.values())
     total, estimate = reader.total_rows, False
     if total is None:
@@ -243,14 +254,15 @@ def _status(reader, work, rows_seen: int, resumed_rows: int) -> BatchProgress:
         total = max(int(round(rows_seen / frac)), rows_seen) if frac > 0 else None
         estimate = frac < 1.0
     rejected = sum(c["rejected"] for c in work.chunks.values())
-    return BatchProgress(done, total, estimate, resumed_rows, rejected, len(work.chunks))
+    return BatchProgress(done, total, estimate, resumed_rows, rejected, len(work.chunks), seconds)
 
 
 def _background(adapter, reader, settings, work, progress, cancel):
-    """The background sample: from the work folder when resuming, else drawn and stored."""
+    """(rows, positions, notes) of the background: from the work folder when resuming, else
+    drawn and stored there."""
     saved = work.saved_background()
     if saved is not None:
-        return saved, ()
+        return saved
     jobs.step(progress, cancel, 0.0, "drawing the background sample")
 
     def usable_chunks():
@@ -261,7 +273,8 @@ def _background(adapter, reader, settings, work, progress, cancel):
             jobs.step(progress, cancel, 0.0, "drawing the background sample")
             yield frame[adapter.input_columns], mask
 
-    sample, rows, seen = reservoir_sample(usable_chunks(), settings.background_size, settings.seed)
+    sample, positions, _ = reservoir_sample(usable_chunks(), settings.background_size,
+                                            settings.seed)
     notes = []
     if len(sample) < settings.background_size:
         notes.append(f"background: {len(sample)} rows, all the usable rows of the input "
@@ -269,12 +282,13 @@ def _background(adapter, reader, settings, work, progress, cancel):
     bad = isolate_failures(lambda part: _check_output(adapter, part), sample,
                            np.arange(len(sample)))
     if bad:
-        sample = sample.drop(index=list(bad)).reset_index(drop=True)
-        notes.append(f"background: {len(bad)} drawn row(s) the model cannot score were left out")
-        if len(sample) == 0:
+        keep = np.array([i for i in range(len(sample)) if i not in bad], dtype=np.int64)
+        if len(keep) == 0:
             raise InputError(f"{reader.path}: the model cannot score any of the background rows "
                              f"(for example: {next(iter(bad.values()))})")
-    return work.save_background(sample), tuple(notes)
+        sample, positions = sample.iloc[keep].reset_index(drop=True), positions[keep]
+        notes.append(f"background: {len(bad)} drawn row(s) the model cannot score were left out")
+    return work.save_background(sample, positions, notes)
 
 
 def _choose_method(adapter, background, settings) -> tuple[str, str, tuple[str, ...], float]:
