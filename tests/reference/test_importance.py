@@ -172,3 +172,28 @@ def test_bad_input_is_an_input_error(cancer):
         permutation_importance(adapter, X.loc[ones.index], ones, metric="auc")
     with pytest.raises(InputError, match="not input columns"):
         permutation_importance(adapter, X, y, groups=[["no such column"]])
+
+
+def test_rank_auc_equals_sklearn_with_ties():
+    """The per-shuffle AUC from mid-ranks (Mann-Whitney U / (n1 n0); Hanley and McNeil 1982)
+    equals sklearn.metrics.roc_auc_score, ties included."""
+    rng = np.random.default_rng(8)
+    y = rng.integers(0, 2, 500)
+    score = np.round(rng.normal(size=500) + y, 1)  # many ties
+    assert importance.auc_by_ranks(y == 1, score) == pytest.approx(skm.roc_auc_score(y, score),
+                                                                   abs=1e-12)
+
+
+def test_multiclass_log_loss_matches_sklearn():
+    """Multiclass: log loss on the probability matrix against scoring="neg_log_loss" (sklearn
+    user guide, "Permutation feature importance"). Data: sklearn.datasets.load_iris."""
+    from sklearn.datasets import load_iris
+
+    X, y = load_iris(return_X_y=True, as_frame=True)
+    model = LogisticRegression(max_iter=2000).fit(X, y)
+    ours = permutation_importance(ModelAdapter(model), X, y, repeats=REPEATS, seed=2)
+    assert ours.metric == "log_loss"
+    theirs = sk_permutation_importance(model, X, y, scoring="neg_log_loss", n_repeats=REPEATS,
+                                       random_state=0)
+    assert ours.baseline == pytest.approx(skm.log_loss(y, model.predict_proba(X)), abs=1e-12)
+    _within_standard_errors(ours, theirs)

@@ -86,7 +86,7 @@ def _targets(adapter: ModelAdapter, y, n: int) -> np.ndarray:
                              f"{adapter.classes}, for example {series[unknown].iloc[0]!r}")
         if adapter.task == "binary":
             return (series == adapter.positive_class).to_numpy(dtype=int)
-        return series.to_numpy(dtype=object)
+        return np.asarray(series.tolist())  # native label type, as sklearn.metrics expects
     return series.to_numpy(dtype=float)
 
 
