@@ -17,7 +17,13 @@ import numpy as np
 import pandas as pd
 import pytest
 from sklearn.compose import ColumnTransformer
-from sklearn.ensemble import GradientBoostingRegressor, HistGradientBoostingClassifier
+from sklearn.datasets import load_iris
+from sklearn.ensemble import (
+    GradientBoostingClassifier,
+    GradientBoostingRegressor,
+    HistGradientBoostingClassifier,
+    RandomForestClassifier,
+)
 from sklearn.linear_model import LogisticRegression
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import OneHotEncoder, OrdinalEncoder, StandardScaler
@@ -235,3 +241,28 @@ def test_native_categorical_hgb_with_kernel_equals_brute_force(with_kernel):
     res = explain(adapter, rows, method="tree", background=bg, background_size="all")
     assert res.method == "tree-interventional"
     check_rows(adapter, model.decision_function, rows, bg, res, 1e-9)
+
+
+@pytest.mark.parametrize(
+    "model",
+    [
+        RandomForestClassifier(n_estimators=8, max_depth=4, random_state=0),
+        GradientBoostingClassifier(n_estimators=8, max_depth=2, random_state=0),
+        HistGradientBoostingClassifier(max_iter=8, random_state=0),
+    ],
+    ids=lambda m: type(m).__name__,
+)
+def test_tree_kernel_multiclass_equals_exact_enumeration(with_kernel, model):
+    """Three classes (load_iris): the class of interest's output, interventional form, equals
+    enumeration of all coalitions of the 4 columns (Shapley 1953); probability for the forest,
+    softmax margin for the boosted models (the adapter's explained output)."""
+    X, y = load_iris(return_X_y=True, as_frame=True)
+    model.fit(X, y)
+    for k in (0, 2):
+        adapter = ModelAdapter(model).with_class(k)
+        rows = X.iloc[[10, 75, 140]]
+        res = explain(adapter, rows, method="tree", background=X, background_size=20, seed=1)
+        exact = explain(adapter, rows, method="exact", background=X, background_size=20, seed=1)
+        assert res.method == "tree-interventional"
+        np.testing.assert_allclose(res.values, exact.values, atol=1e-9)
+        assert res.base_value == pytest.approx(exact.base_value, abs=1e-12)

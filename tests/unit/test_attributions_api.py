@@ -264,3 +264,14 @@ def test_text_category_and_missing_values_keep_their_types():
     assert res.method == "exact"
     np.testing.assert_allclose(res.residual, 0.0, atol=1e-12)
     assert all(d[0] == "category" and d[1] == "str" and d[2] == "float64" for d in seen_dtypes)
+
+
+def test_hgb_on_pandas_categories_without_kernel_falls_back(no_kernel):
+    rng = np.random.default_rng(0)
+    n = 200
+    X = pd.DataFrame({"a": rng.normal(size=n), "k": pd.Categorical(rng.choice(["x", "y", "z"], n))})
+    y = ((X["a"] > 0) ^ (X["k"] == "z")).astype(int)
+    model = HistGradientBoostingClassifier(max_iter=8).fit(X, y)  # categories from the dtype
+    res = explain(ModelAdapter(model), X.iloc[:2], background=X, background_size=20, form="path")
+    assert res.method == "exact" and res.notes
+    np.testing.assert_allclose(res.residual, 0.0, atol=1e-12)
