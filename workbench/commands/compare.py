@@ -149,8 +149,8 @@ def print_readable(c, payload: dict, dropped: int) -> None:
                   "better": "higher" if m["higher_is_better"][k] else "lower"}
                  for k in m["a"]])
     if c.delong is not None:
-        print(f"DeLong test of equal AUC: z = {c.delong.z:.3f}, two-sided p = "
-              f"{c.delong.p_value:.3g} ({c.delong.positives} positives, "
+        print(f"DeLong test of equal AUC: z = {c.delong.z:.3f}, two-sided p "
+              f"{p_text(c.delong.p_value)} ({c.delong.positives} positives, "
               f"{c.delong.negatives} negatives)")
     a = payload["agreement"]
     print(f"\nscore agreement: Spearman {a['spearman']:.4f}, Kendall {a['kendall']:.4f}; "
@@ -177,6 +177,11 @@ def print_readable(c, payload: dict, dropped: int) -> None:
                       "predicted B": float(r["predicted_b"])} for r in payload["double_lift"]])
     for note in c.notes:
         print(f"note: {note}")
+
+
+def p_text(p: float) -> str:
+    """``= 0.0312``, or ``< 1e-300`` where the normal tail underflows to zero."""
+    return "< 1e-300" if p == 0 else f"= {p:.3g}"
 
 
 def _cell(swap, cell: str) -> str:

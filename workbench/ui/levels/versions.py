@@ -367,7 +367,7 @@ class VersionsLevel(Level):
             d = c.delong
             self.delong_label.setText(
                 f"<b>DeLong test</b> of equal AUC: AUC A {d.auc_a:.4f}, B {d.auc_b:.4f}, "
-                f"z = {d.z:.3f}, two-sided p = {d.p_value:.3g} "
+                f"z = {d.z:.3f}, two-sided p {'&lt; 1e-300' if d.p_value == 0 else f'= {d.p_value:.3g}'} "
                 f"({d.positives:,} positives, {d.negatives:,} negatives)")
         else:
             self.delong_label.setText("DeLong test: for binary models only")
