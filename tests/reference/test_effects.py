@@ -223,3 +223,25 @@ def test_bad_features_are_input_errors(lending):
         accumulated_local_effects(adapter, X, "region")
     with pytest.raises(InputError, match="scale"):
         partial_dependence(adapter, X, "income", scale="odds")
+
+
+def test_progress_rises_and_cancel_stops(lending, monkeypatch):
+    """Engine convention (DEVELOPERS.md; no outside source): progress fractions rise to 1 between
+    chunks, and a cancel request raises Cancelled."""
+    from workbench.engine.errors import Cancelled
+    from workbench.engine.importance import permutation_importance
+    from workbench.engine.interactions import h_statistics
+
+    model, X = lending
+    adapter = ModelAdapter(model)
+    monkeypatch.setattr(effects, "CHUNK_ROWS", len(X) * 2)
+    seen = []
+    partial_dependence(adapter, X, "income", progress=lambda f, m: seen.append(f))
+    assert seen == sorted(seen) and seen[-1] == 1.0 and len(seen) > 2
+    y = (X["debt"] > 0.4).astype(int)
+    for run in (lambda c: partial_dependence(adapter, X, "income", cancel=c),
+                lambda c: accumulated_local_effects(adapter, X, "income", cancel=c),
+                lambda c: permutation_importance(adapter, X, y, cancel=c),
+                lambda c: h_statistics(adapter, X, sample=20, cancel=c)):
+        with pytest.raises(Cancelled):
+            run(lambda: True)
