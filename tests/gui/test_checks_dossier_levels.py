@@ -89,6 +89,11 @@ def test_dossier_level_exports_html_with_user_text_escaped_and_saves(window, sma
     assert "pairs" not in doc["sections"] and doc["inputs"]["data"]["sha256"]
     assert any(e["what"] == "dossier written" for e in doc["audit"])
     assert open_project(saved).signoff["name"] == f"Ana {EVIL}"
+    level.notes.setPlainText("typed after saving")
+    side = level.autosave_now()
+    assert side is not None and side.name == "p.wbench.autosave"
+    assert open_project(saved, recover=True).notes == "typed after saving"
+    assert open_project(saved).notes.startswith("All good.")
 
 
 def test_opening_a_project_with_a_changed_input_relinks_or_stops(window, small_files,

@@ -355,8 +355,10 @@ class _Builder:
                          "high": None if iv is None else iv.high})
         swap = None
         if c.swap is not None:
-            swap = {k: getattr(c.swap, k) for k in dir(c.swap)
-                    if not k.startswith("_") and isinstance(getattr(c.swap, k), int | float | np.integer | np.floating)}
+            cells = {"both_accept": "both accept", "swap_in": "swap in (A declines, B accepts)",
+                     "swap_out": "swap out (A accepts, B declines)", "both_decline": "both decline"}
+            swap = [{"cell": text, "rows": c.swap.counts.get(k), "bad_rate": c.swap.bad_rate.get(k)}
+                    for k, text in cells.items()]
         return {"metrics": rows, "spearman": c.spearman, "kendall": c.kendall,
                 "moved_share": c.moved_share, "moved_threshold": c.moved_threshold,
                 "swap": _plain(swap), "notes": list(c.notes), "rows": c.n}

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from PySide6.QtCore import QTimer
 from PySide6.QtWidgets import (
     QCheckBox,
     QFileDialog,
@@ -37,6 +38,7 @@ from workbench.session.project import (
 from workbench.ui.levels.base import Level, register_level
 from workbench.ui.levels.checks import project_of, sync_project
 
+AUTOSAVE_SECONDS = 120  # a crash loses at most this much typing (recovered on opening)
 SIGNOFF_FIELDS = (("name", "Name"), ("role", "Role"), ("date", "Date"),
                   ("decision", "Decision"), ("conditions", "Conditions"))
 
@@ -102,6 +104,10 @@ class DossierLevel(Level):
         layout.addLayout(buttons)
         layout.addWidget(self.status)
         self.last_export: Path | None = None
+        self.autosave_timer = QTimer(self)
+        self.autosave_timer.setInterval(AUTOSAVE_SECONDS * 1000)
+        self.autosave_timer.timeout.connect(self.autosave_now)
+        self.autosave_timer.start()
 
     def file_actions(self) -> list[tuple[str, object]]:
         """Entries a shell may add to its File menu."""
@@ -191,8 +197,15 @@ class DossierLevel(Level):
         return out
 
     def autosave_now(self) -> Path | None:
-        project = self.collect()
-        return autosave(project) if project.path is not None else None
+        """Write the side copy of a project that has a file (nothing before the first save)."""
+        project = project_of(self.ctx)
+        if project.path is None:
+            return None
+        try:
+            return autosave(self.collect())
+        except (OSError, InputError) as exc:
+            self.status.setText(f"Autosave failed: {exc}")
+            return None
 
     def _ask_open(self) -> None:
         path, _ = QFileDialog.getOpenFileName(self, "Open project", "", "Project (*.wbench)")
