@@ -174,7 +174,7 @@ def _rank_phrase(rank: int) -> str:
 def default_outcome(adapter) -> str:
     if adapter is not None and getattr(adapter, "classes", None):
         return f"the estimated probability of {adapter.positive_class}"
-    return "the predicted value"
+    return f"the {getattr(adapter, 'response_units', None) or 'predicted value'}"
 
 
 def sentence_for(feature: str, value, contribution: float, rank: int, *, direction: str,
