@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 import pytest
 from sklearn.compose import ColumnTransformer
-from sklearn.datasets import load_iris
+from sklearn.datasets import load_diabetes, load_iris
 from sklearn.ensemble import HistGradientBoostingClassifier
 from sklearn.linear_model import LinearRegression, LogisticRegression
 from sklearn.pipeline import make_pipeline
@@ -175,3 +175,17 @@ def test_effect_overlay_of_a_feature_one_model_lacks(pair):
         effect_overlay(a, b, df, "bad")
     cat = effect_overlay(a, b, df, "region")
     assert cat.kind == "categorical" and list(cat.grid) == ["north", "south"]
+
+
+def test_regression_models_compare_with_value_cutoff_and_double_lift():
+    X, y = load_diabetes(return_X_y=True, as_frame=True)
+    a = ModelAdapter(LinearRegression().fit(X[["bmi", "bp"]], y))
+    b = ModelAdapter(LinearRegression().fit(X, y))
+    c = compare_versions(a, b, X, y, cutoff=200.0, resamples=20, importance_repeats=1, bands=5)
+    assert c.task == "regression" and set(c.difference) == {"rmse", "mae", "r2"}
+    assert c.delong is None
+    assert c.swap is not None and all(np.isnan(v) for v in c.swap.bad_rate.values())
+    assert sum(c.swap.counts.values()) == len(X)
+    assert c.double_lift is not None and c.double_lift.bands == 5
+    assert c.difference["r2"] > 0  # the model with every column fits its own data better
+    assert c.ranking.features[:2] == ["bmi", "bp"] and len(c.ranking.features) == X.shape[1]
