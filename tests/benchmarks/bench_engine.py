@@ -1,6 +1,7 @@
 """Speed of permutation importance, PD/ICE and H-statistics, as ratios measured in the same run.
 
-Run: ``python tests/benchmarks/bench_engine.py [rows] [features]`` (defaults 2000 rows, 8 features).
+Run: ``python tests/benchmarks/bench_engine.py [rows] [features]`` (defaults 2000 rows, 8 features);
+on a shared machine set ``OMP_NUM_THREADS=1`` so that contention does not swamp the ratios.
 Each figure is the min / median / max of 5 runs in seconds; ratios use the medians.
 
 - permutation importance vs one batched prediction of the same total rows (the floor: every
@@ -65,8 +66,11 @@ def main(n: int = 2000, p: int = 8) -> None:
     copies = p * REPEATS
     stacked = stacked_frame(x, np.tile(np.arange(n), copies))
     floor = timed(lambda: adapter.response(stacked))
-    theirs = timed(lambda: sk_permutation_importance(model, X, y, scoring="roc_auc",
-                                                     n_repeats=REPEATS, random_state=0))
+    theirs = timed(
+        lambda: sk_permutation_importance(
+            model, X, y, scoring="roc_auc", n_repeats=REPEATS, random_state=0
+        )
+    )
     show(f"workbench permutation_importance ({copies} shuffles)", ours)
     show(f"one batched prediction of {copies * n} rows", floor)
     show("sklearn permutation_importance", theirs)
@@ -75,11 +79,20 @@ def main(n: int = 2000, p: int = 8) -> None:
 
     curve = partial_dependence(adapter, X, "x0", grid_size=20, ice_rows=None)
     grid = curve.grid
-    ours = timed(lambda: partial_dependence(adapter, X, "x0", grid=grid, ice_rows=None,
-                                            scale="response"))
-    theirs = timed(lambda: sk_partial_dependence(model, X, ["x0"], kind="both", method="brute",
-                                                 response_method="predict_proba",
-                                                 custom_values={"x0": grid}))
+    ours = timed(
+        lambda: partial_dependence(adapter, X, "x0", grid=grid, ice_rows=None, scale="response")
+    )
+    theirs = timed(
+        lambda: sk_partial_dependence(
+            model,
+            X,
+            ["x0"],
+            kind="both",
+            method="brute",
+            response_method="predict_proba",
+            custom_values={"x0": grid},
+        )
+    )
     show(f"workbench partial_dependence + ICE ({grid.size} points)", ours)
     show("sklearn partial_dependence kind=both brute", theirs)
     print(f"  ratio to sklearn:                {ours[1] / theirs[1]:.2f}")

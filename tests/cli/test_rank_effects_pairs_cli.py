@@ -19,11 +19,14 @@ def interacting(tmp_path_factory):
     d = tmp_path_factory.mktemp("pairs")
     rng = np.random.default_rng(0)
     n = 600
-    df = pd.DataFrame({"x1": rng.uniform(-1, 1, n), "x2": rng.uniform(-1, 1, n),
-                       "x3": rng.uniform(-1, 1, n)})
+    df = pd.DataFrame(
+        {"x1": rng.uniform(-1, 1, n), "x2": rng.uniform(-1, 1, n), "x3": rng.uniform(-1, 1, n)}
+    )
     df["x4"] = df["x3"] + rng.normal(0, 0.05, n)
     df["y"] = df["x1"] * df["x2"] + df["x3"] + rng.normal(0, 0.05, n)
-    model = HistGradientBoostingRegressor(max_iter=80, random_state=0).fit(df[["x1", "x2", "x3", "x4"]], df["y"])
+    model = HistGradientBoostingRegressor(max_iter=80, random_state=0).fit(
+        df[["x1", "x2", "x3", "x4"]], df["y"]
+    )
     sio.dump(model, d / "hgb.skops")
     df.to_csv(d / "data.csv", index=False)
     return {"model": d / "hgb.skops", "csv": d / "data.csv", "frame": df, "estimator": model}
@@ -40,7 +43,9 @@ def test_rank_json(cli_files):
     df, model = cli_files["frame"], cli_files["estimator"]
     X = df[["income", "debt_ratio", "region"]]
     assert out["metric"] == "auc" and out["higher_is_better"] is True
-    assert out["baseline"] == pytest.approx(skm.roc_auc_score(df["bad"], model.predict_proba(X)[:, 1]))
+    assert out["baseline"] == pytest.approx(
+        skm.roc_auc_score(df["bad"], model.predict_proba(X)[:, 1])
+    )
     names = [f["feature"] for f in out["features"]]
     assert sorted(names) == ["debt_ratio", "income", "region"]
     values = [f["importance"] for f in out["features"]]
@@ -50,8 +55,19 @@ def test_rank_json(cli_files):
 
 
 def test_rank_other_metric_and_no_groups(cli_files):
-    out = _json("rank", cli_files["model"], cli_files["csv"], "--target", "bad", "--metric",
-                "log_loss", "--groups", "none", "--repeats", "2")
+    out = _json(
+        "rank",
+        cli_files["model"],
+        cli_files["csv"],
+        "--target",
+        "bad",
+        "--metric",
+        "log_loss",
+        "--groups",
+        "none",
+        "--repeats",
+        "2",
+    )
     assert out["metric"] == "log_loss" and out["higher_is_better"] is False
     assert out["groups"] == []
 
@@ -66,26 +82,51 @@ def test_rank_groups_auto_finds_associated_columns(interacting):
 
 
 def test_rank_bad_input_exits_2(cli_files, tmp_path):
-    code, _, err = run_cli("rank", cli_files["model"], cli_files["csv"], "--target", "bad",
-                           "--metric", "rmse", "--trust")
+    code, _, err = run_cli(
+        "rank",
+        cli_files["model"],
+        cli_files["csv"],
+        "--target",
+        "bad",
+        "--metric",
+        "rmse",
+        "--trust",
+    )
     assert code == 2 and "does not fit" in err
     one = cli_files["frame"].assign(bad=1)
     one.to_csv(tmp_path / "one.csv", index=False)
-    code, _, err = run_cli("rank", cli_files["model"], tmp_path / "one.csv", "--target", "bad", "--trust")
+    code, _, err = run_cli(
+        "rank", cli_files["model"], tmp_path / "one.csv", "--target", "bad", "--trust"
+    )
     assert code == 2 and "one class" in err
     assert "Traceback" not in err
 
 
 def test_effects_json_matches_sklearn(cli_files):
-    out = _json("effects", cli_files["model"], cli_files["csv"], "--feature", "debt_ratio",
-                "--grid", "8", "--ice-rows", "15")
+    out = _json(
+        "effects",
+        cli_files["model"],
+        cli_files["csv"],
+        "--feature",
+        "debt_ratio",
+        "--grid",
+        "8",
+        "--ice-rows",
+        "15",
+    )
     model = cli_files["estimator"]
     X = cli_files["frame"][["income", "debt_ratio", "region"]]
     grid = np.asarray(out["grid"])
     assert out["kind"] == "numeric" and len(grid) == 8 and out["units"] == "log-odds of 1"
-    theirs = sk_partial_dependence(model, X, ["debt_ratio"], kind="average", method="brute",
-                                   response_method="decision_function",
-                                   custom_values={"debt_ratio": grid})
+    theirs = sk_partial_dependence(
+        model,
+        X,
+        ["debt_ratio"],
+        kind="average",
+        method="brute",
+        response_method="decision_function",
+        custom_values={"debt_ratio": grid},
+    )
     np.testing.assert_allclose(out["pd"], theirs["average"][0], atol=1e-10)
     assert np.asarray(out["ice"]["values"]).shape == (15, 8) and len(out["ice"]["rows"]) == 15
     assert len(out["ale"]["values"]) == len(out["ale"]["edges"])
@@ -93,19 +134,30 @@ def test_effects_json_matches_sklearn(cli_files):
 
 
 def test_effects_categorical_has_no_ale(cli_files):
-    out = _json("effects", cli_files["model"], cli_files["csv"], "--feature", "region",
-                "--scale", "response")
+    out = _json(
+        "effects",
+        cli_files["model"],
+        cli_files["csv"],
+        "--feature",
+        "region",
+        "--scale",
+        "response",
+    )
     assert out["kind"] == "categorical" and out["grid"] == ["north", "south", "west"]
     assert out["ale"] is None and out["units"] == "probability of 1"
 
 
 def test_effects_unknown_feature_exits_2(cli_files):
-    code, _, err = run_cli("effects", cli_files["model"], cli_files["csv"], "--feature", "age", "--trust")
+    code, _, err = run_cli(
+        "effects", cli_files["model"], cli_files["csv"], "--feature", "age", "--trust"
+    )
     assert code == 2 and "'age' is not an input column" in err
 
 
 def test_pairs_json(interacting):
-    out = _json("pairs", interacting["model"], interacting["csv"], "--sample", "120", "--screen", "3")
+    out = _json(
+        "pairs", interacting["model"], interacting["csv"], "--sample", "120", "--screen", "3"
+    )
     assert out["features"] == ["x1", "x2", "x3", "x4"]
     assert sorted(out["order"]) == sorted(out["features"])
     h = [p["h"] for p in out["h_pairs"]]
@@ -119,6 +171,8 @@ def test_pairs_json(interacting):
 
 
 def test_pairs_readable_table(interacting):
-    code, out, err = run_cli("pairs", interacting["model"], interacting["csv"], "--sample", "60", "--trust")
+    code, out, err = run_cli(
+        "pairs", interacting["model"], interacting["csv"], "--sample", "60", "--trust"
+    )
     assert code == 0, err
     assert "x1 x x2" in out and "overall H" in out

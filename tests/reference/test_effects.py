@@ -28,19 +28,33 @@ from workbench.engine.errors import InputError
 def lending():
     rng = np.random.default_rng(0)
     n = 300
-    X = pd.DataFrame({"income": rng.normal(40, 9, n), "debt": rng.uniform(0, 0.8, n),
-                      "region": rng.choice(["north", "south", "west"], n)})
+    X = pd.DataFrame(
+        {
+            "income": rng.normal(40, 9, n),
+            "debt": rng.uniform(0, 0.8, n),
+            "region": rng.choice(["north", "south", "west"], n),
+        }
+    )
     logit = -1 + 3 * X["debt"] - 0.05 * (X["income"] - 40) + (X["region"] == "west") * 0.7
     y = (rng.uniform(size=n) < 1 / (1 + np.exp(-logit))).astype(int)
-    ct = ColumnTransformer([("num", StandardScaler(), ["income", "debt"]),
-                            ("cat", OneHotEncoder(), ["region"])])
+    ct = ColumnTransformer(
+        [("num", StandardScaler(), ["income", "debt"]), ("cat", OneHotEncoder(), ["region"])]
+    )
     model = make_pipeline(ct, LogisticRegression()).fit(X, y)
     return model, X
 
 
 def _sklearn(model, X, feature, grid, method, **kw):
-    return sk_partial_dependence(model, X, [feature], kind="both", method="brute",
-                                 response_method=method, custom_values={feature: grid}, **kw)
+    return sk_partial_dependence(
+        model,
+        X,
+        [feature],
+        kind="both",
+        method="brute",
+        response_method=method,
+        custom_values={feature: grid},
+        **kw,
+    )
 
 
 def test_pd_and_ice_equal_sklearn_on_both_scales(lending):
@@ -66,8 +80,14 @@ def test_categorical_pd_equals_sklearn(lending):
     ours = partial_dependence(ModelAdapter(model), X, "region", ice_rows=None, scale="response")
     assert ours.kind == "categorical"
     assert list(ours.grid) == ["north", "south", "west"]
-    theirs = _sklearn(model, X, "region", np.array(["north", "south", "west"], dtype=object),
-                      "predict_proba", categorical_features=["region"])
+    theirs = _sklearn(
+        model,
+        X,
+        "region",
+        np.array(["north", "south", "west"], dtype=object),
+        "predict_proba",
+        categorical_features=["region"],
+    )
     np.testing.assert_allclose(ours.pd, theirs["average"][0], atol=1e-10)
     np.testing.assert_allclose(ours.ice, theirs["individual"][0], atol=1e-10)
     assert ours.counts.sum() == len(X)
@@ -110,15 +130,22 @@ def test_integer_codes_and_native_categories_equal_sklearn():
     model = make_pipeline(ct, LogisticRegression()).fit(X, y)
     ours = partial_dependence(ModelAdapter(model), X, "grade", ice_rows=None, scale="response")
     assert ours.kind == "categorical" and list(ours.grid) == [1, 2, 3, 4]
-    theirs = _sklearn(model, X, "grade", np.array([1, 2, 3, 4]), "predict_proba",
-                      categorical_features=["grade"])
+    theirs = _sklearn(
+        model, X, "grade", np.array([1, 2, 3, 4]), "predict_proba", categorical_features=["grade"]
+    )
     np.testing.assert_allclose(ours.pd, theirs["average"][0], atol=1e-10)
 
     Xc = X.assign(grade=X["grade"].map({1: "a", 2: "b", 3: "c", 4: "d"}).astype("category"))
     hgb = HistGradientBoostingRegressor(max_iter=20, categorical_features="from_dtype").fit(Xc, y)
     ours = partial_dependence(ModelAdapter(hgb), Xc, "grade", ice_rows=None)
-    theirs = _sklearn(hgb, Xc, "grade", np.array(["a", "b", "c", "d"], dtype=object), "auto",
-                      categorical_features=["grade"])
+    theirs = _sklearn(
+        hgb,
+        Xc,
+        "grade",
+        np.array(["a", "b", "c", "d"], dtype=object),
+        "auto",
+        categorical_features=["grade"],
+    )
     np.testing.assert_allclose(ours.pd, theirs["average"][0], atol=1e-10)
     with pytest.raises(InputError, match="not categories"):
         partial_dependence(ModelAdapter(hgb), Xc, "grade", grid=["a", "z"])
@@ -128,20 +155,23 @@ def test_pair_map_equals_sklearn_two_way():
     """Two-feature PD equals sklearn's partial_dependence on a feature pair with the same grids
     (Friedman 2001, section 8.2). Classifier without a margin: the probability."""
     rng = np.random.default_rng(2)
-    X = pd.DataFrame({"a": rng.normal(size=150), "b": rng.normal(size=150), "c": rng.normal(size=150)})
+    X = pd.DataFrame(
+        {"a": rng.normal(size=150), "b": rng.normal(size=150), "c": rng.normal(size=150)}
+    )
     y = (X["a"] * X["b"] + X["c"] > 0).astype(int)
     model = RandomForestClassifier(n_estimators=20, random_state=0).fit(X, y)
     ga, gb = np.array([-1.0, 0.0, 1.0]), np.array([-0.5, 0.5])
     ours = pair_dependence(ModelAdapter(model), X, "a", "b", grid_a=ga, grid_b=gb, rows=None)
-    theirs = sk_partial_dependence(model, X, ("a", "b"), kind="average", method="brute",
-                                   custom_values={"a": ga, "b": gb})
+    theirs = sk_partial_dependence(
+        model, X, ("a", "b"), kind="average", method="brute", custom_values={"a": ga, "b": gb}
+    )
     assert ours.values.shape == (3, 2)
     np.testing.assert_allclose(ours.values, theirs["average"][0], atol=1e-10)
 
 
 def test_centred_ice_starts_at_zero_and_keeps_shape(lending):
     """Centred ICE: each line minus its value at the first grid point (Goldstein et al. 2015,
-    J. Comput. Graph. Statist. 24(1), section 3.1)."""
+    J. Comput. Graph. Statist. 24(1), the c-ICE plot)."""
     model, X = lending
     curve = partial_dependence(ModelAdapter(model), X, "debt", ice_rows=25)
     c = curve.centred()
@@ -174,7 +204,7 @@ def test_batched_chunks_give_the_same_curve(lending, monkeypatch):
 def test_ale_of_a_linear_model_is_beta_times_x_centred():
     """For f = b0 + sum_j b_j x_j the first-order ALE of x_j is b_j (x - c) with c the centring
     constant, and the centred estimator averages to zero over the rows (Apley and Zhu 2020,
-    J. R. Statist. Soc. B 82(4), section 2.2, eqs. 15-16)."""
+    J. R. Statist. Soc. B 82(4), section 2.2, eqs. 15-16; numbering from memory)."""
     rng = np.random.default_rng(3)
     n = 2000
     x1 = rng.normal(size=n)
@@ -239,9 +269,11 @@ def test_progress_rises_and_cancel_stops(lending, monkeypatch):
     partial_dependence(adapter, X, "income", progress=lambda f, m: seen.append(f))
     assert seen == sorted(seen) and seen[-1] == 1.0 and len(seen) > 2
     y = (X["debt"] > 0.4).astype(int)
-    for run in (lambda c: partial_dependence(adapter, X, "income", cancel=c),
-                lambda c: accumulated_local_effects(adapter, X, "income", cancel=c),
-                lambda c: permutation_importance(adapter, X, y, cancel=c),
-                lambda c: h_statistics(adapter, X, sample=20, cancel=c)):
+    for run in (
+        lambda c: partial_dependence(adapter, X, "income", cancel=c),
+        lambda c: accumulated_local_effects(adapter, X, "income", cancel=c),
+        lambda c: permutation_importance(adapter, X, y, cancel=c),
+        lambda c: h_statistics(adapter, X, sample=20, cancel=c),
+    ):
         with pytest.raises(Cancelled):
             run(lambda: True)

@@ -21,8 +21,10 @@ REPEATS = 40
 
 def _within_standard_errors(ours, theirs, z=4.5):
     """Both are means over independent permutations: compare within z standard errors."""
-    se = np.sqrt(ours.importances.var(axis=1) / ours.repeats
-                 + theirs.importances_std ** 2 / theirs.importances.shape[1])
+    se = np.sqrt(
+        ours.importances.var(axis=1) / ours.repeats
+        + theirs.importances_std**2 / theirs.importances.shape[1]
+    )
     gap = np.abs(ours.mean - theirs.importances_mean)
     assert np.all(gap <= z * se + 1e-9), (gap, se)
 
@@ -42,10 +44,12 @@ def test_auc_importance_matches_sklearn(cancer):
     sklearn.datasets.load_breast_cancer."""
     model, X, y = cancer
     ours = permutation_importance(ModelAdapter(model), X, y, metric="auc", repeats=REPEATS, seed=3)
-    theirs = sk_permutation_importance(model, X, y, scoring="roc_auc", n_repeats=REPEATS,
-                                       random_state=11)
-    assert ours.baseline == pytest.approx(skm.roc_auc_score(y, model.predict_proba(X)[:, 1]),
-                                          abs=1e-12)
+    theirs = sk_permutation_importance(
+        model, X, y, scoring="roc_auc", n_repeats=REPEATS, random_state=11
+    )
+    assert ours.baseline == pytest.approx(
+        skm.roc_auc_score(y, model.predict_proba(X)[:, 1]), abs=1e-12
+    )
     assert ours.importances.shape == (6, REPEATS)
     _within_standard_errors(ours, theirs)
     assert ours.greater_is_better
@@ -56,8 +60,9 @@ def test_log_loss_importance_matches_sklearn(cancer):
     distribution (sklearn user guide, "Permutation feature importance")."""
     model, X, y = cancer
     ours = permutation_importance(ModelAdapter(model), X, y, metric="log_loss", repeats=REPEATS)
-    theirs = sk_permutation_importance(model, X, y, scoring="neg_log_loss", n_repeats=REPEATS,
-                                       random_state=5)
+    theirs = sk_permutation_importance(
+        model, X, y, scoring="neg_log_loss", n_repeats=REPEATS, random_state=5
+    )
     assert ours.baseline == pytest.approx(skm.log_loss(y, model.predict_proba(X)), abs=1e-12)
     _within_standard_errors(ours, theirs)
 
@@ -68,8 +73,9 @@ def test_rmse_importance_matches_sklearn():
     X, y = load_diabetes(return_X_y=True, as_frame=True)
     model = Ridge(alpha=0.1).fit(X, y)
     ours = permutation_importance(ModelAdapter(model), X, y, metric="rmse", repeats=REPEATS, seed=1)
-    theirs = sk_permutation_importance(model, X, y, scoring="neg_root_mean_squared_error",
-                                       n_repeats=REPEATS, random_state=2)
+    theirs = sk_permutation_importance(
+        model, X, y, scoring="neg_root_mean_squared_error", n_repeats=REPEATS, random_state=2
+    )
     assert ours.baseline == pytest.approx(skm.root_mean_squared_error(y, model.predict(X)))
     _within_standard_errors(ours, theirs)
     assert ours.features[int(ours.order[0])] in ("bmi", "s5")
@@ -80,19 +86,25 @@ def test_mixed_pipeline_and_weights_match_sklearn():
     scoring="neg_brier_score" (sklearn user guide, "Permutation feature importance")."""
     rng = np.random.default_rng(0)
     n = 600
-    X = pd.DataFrame({"a": rng.normal(size=n), "b": rng.normal(size=n),
-                      "region": rng.choice(["n", "s", "w"], n)})
+    X = pd.DataFrame(
+        {"a": rng.normal(size=n), "b": rng.normal(size=n), "region": rng.choice(["n", "s", "w"], n)}
+    )
     logit = 1.2 * X["a"] - 0.4 * X["b"] + (X["region"] == "w") * 1.0
     y = (rng.uniform(size=n) < 1 / (1 + np.exp(-logit))).astype(int)
     w = rng.uniform(0.5, 2.0, n)
-    ct = ColumnTransformer([("num", "passthrough", ["a", "b"]), ("cat", OneHotEncoder(), ["region"])])
+    ct = ColumnTransformer(
+        [("num", "passthrough", ["a", "b"]), ("cat", OneHotEncoder(), ["region"])]
+    )
     model = make_pipeline(ct, LogisticRegression()).fit(X, y)
-    ours = permutation_importance(ModelAdapter(model), X, y, metric="brier", repeats=REPEATS,
-                                  sample_weight=w)
-    theirs = sk_permutation_importance(model, X, y, scoring="neg_brier_score", n_repeats=REPEATS,
-                                       random_state=9, sample_weight=w)
+    ours = permutation_importance(
+        ModelAdapter(model), X, y, metric="brier", repeats=REPEATS, sample_weight=w
+    )
+    theirs = sk_permutation_importance(
+        model, X, y, scoring="neg_brier_score", n_repeats=REPEATS, random_state=9, sample_weight=w
+    )
     assert ours.baseline == pytest.approx(
-        skm.brier_score_loss(y, model.predict_proba(X)[:, 1], sample_weight=w), abs=1e-12)
+        skm.brier_score_loss(y, model.predict_proba(X)[:, 1], sample_weight=w), abs=1e-12
+    )
     _within_standard_errors(ours, theirs)
 
 
@@ -112,7 +124,8 @@ def test_poisson_exposure_baseline_is_weighted_frequency_deviance():
     ours = permutation_importance(adapter, X, counts, repeats=10, exposure=e)
     assert ours.metric == "poisson_deviance" and ours.exposure
     assert ours.baseline == pytest.approx(
-        skm.mean_poisson_deviance(counts / e, model.predict(X), sample_weight=e), rel=1e-12)
+        skm.mean_poisson_deviance(counts / e, model.predict(X), sample_weight=e), rel=1e-12
+    )
     assert ours.mean[1] > 0  # power drives the frequency
 
 
@@ -122,10 +135,14 @@ def test_batched_equals_one_shuffle_at_a_time(cancer, monkeypatch):
     batching is ours)."""
     model, X, y = cancer
     adapter = ModelAdapter(model)
-    big = permutation_importance(adapter, X, y, repeats=3, seed=7, groups=[["mean radius", "mean area"]])
+    big = permutation_importance(
+        adapter, X, y, repeats=3, seed=7, groups=[["mean radius", "mean area"]]
+    )
     monkeypatch.setattr(effects, "CHUNK_ROWS", 1)
     monkeypatch.setattr(importance, "CHUNK_ROWS", 1)
-    small = permutation_importance(adapter, X, y, repeats=3, seed=7, groups=[["mean radius", "mean area"]])
+    small = permutation_importance(
+        adapter, X, y, repeats=3, seed=7, groups=[["mean radius", "mean area"]]
+    )
     np.testing.assert_allclose(big.importances, small.importances, rtol=0, atol=1e-12)
     np.testing.assert_allclose(big.groups[0].importances, small.groups[0].importances, atol=1e-12)
 
@@ -141,8 +158,9 @@ def test_group_permutation_uses_one_permutation_for_the_block():
     y = 2 * x1 + 0.1 * X["x3"]
     model = Ridge(alpha=1e-9).fit(X, y)
     adapter = ModelAdapter(model)
-    res = permutation_importance(adapter, X, y, metric="rmse", repeats=1, seed=0,
-                                 groups=[["x1", "x2"]])
+    res = permutation_importance(
+        adapter, X, y, metric="rmse", repeats=1, seed=0, groups=[["x1", "x2"]]
+    )
     gen = np.random.default_rng(0)
     perms = [gen.permutation(n) for _ in range(4)]
     hand = X.copy()
@@ -180,8 +198,9 @@ def test_rank_auc_equals_sklearn_with_ties():
     rng = np.random.default_rng(8)
     y = rng.integers(0, 2, 500)
     score = np.round(rng.normal(size=500) + y, 1)  # many ties
-    assert importance.auc_by_ranks(y == 1, score) == pytest.approx(skm.roc_auc_score(y, score),
-                                                                   abs=1e-12)
+    assert importance.auc_by_ranks(y == 1, score) == pytest.approx(
+        skm.roc_auc_score(y, score), abs=1e-12
+    )
 
 
 def test_multiclass_log_loss_matches_sklearn():
@@ -193,7 +212,8 @@ def test_multiclass_log_loss_matches_sklearn():
     model = LogisticRegression(max_iter=2000).fit(X, y)
     ours = permutation_importance(ModelAdapter(model), X, y, repeats=REPEATS, seed=2)
     assert ours.metric == "log_loss"
-    theirs = sk_permutation_importance(model, X, y, scoring="neg_log_loss", n_repeats=REPEATS,
-                                       random_state=0)
+    theirs = sk_permutation_importance(
+        model, X, y, scoring="neg_log_loss", n_repeats=REPEATS, random_state=0
+    )
     assert ours.baseline == pytest.approx(skm.log_loss(y, model.predict_proba(X)), abs=1e-12)
     _within_standard_errors(ours, theirs)

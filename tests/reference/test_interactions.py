@@ -1,7 +1,7 @@
 """Reference checks for workbench.engine.interactions: Friedman's H-statistic.
 
 Source: Friedman and Popescu (2008), "Predictive learning via rule ensembles", Ann. Appl. Stat.
-2(3), section 8.1, eq. 44 (pairwise H^2_jk) and eq. 46 (overall H^2_j).
+2(3), section 8, eq. 44 (pairwise H^2_jk) and eq. 46 (overall H^2_j).
 """
 
 import numpy as np
@@ -31,8 +31,13 @@ class FormulaRegressor(RegressorMixin, BaseEstimator):
     def predict(self, X):
         a = np.asarray(X, dtype=float)
         x1, x2, x3 = a[:, 0], a[:, 1], a[:, 2]
-        return {"one": x1, "add": x1 + x2, "mul": x1 * x2, "mix": x1 + x2 + x1 * x2,
-                "mul_plus": x1 * x2 + x3}[self.formula]
+        return {
+            "one": x1,
+            "add": x1 + x2,
+            "mul": x1 * x2,
+            "mix": x1 + x2 + x1 * x2,
+            "mul_plus": x1 * x2 + x3,
+        }[self.formula]
 
 
 @pytest.fixture(scope="module")
@@ -43,8 +48,9 @@ def uniform():
 
 
 def _h2(formula, X, **kw):
-    return h_statistics(ModelAdapter(FormulaRegressor(formula).fit(X)), X, sample=len(X),
-                        screen=None, **kw)
+    return h_statistics(
+        ModelAdapter(FormulaRegressor(formula).fit(X)), X, sample=len(X), screen=None, **kw
+    )
 
 
 def test_additive_function_has_no_interaction(uniform):
@@ -111,8 +117,14 @@ def test_equals_the_definition_built_from_sklearn_partial_dependence():
     S = X.iloc[pos].reset_index(drop=True)
 
     def pd_at_sample(cols):
-        pdr = sk_partial_dependence(model, S, cols, kind="average", method="brute",
-                                    custom_values={c: np.unique(S[c]) for c in cols})
+        pdr = sk_partial_dependence(
+            model,
+            S,
+            cols,
+            kind="average",
+            method="brute",
+            custom_values={c: np.unique(S[c]) for c in cols},
+        )
         grids = pdr["grid_values"]
         where = tuple(np.searchsorted(g, S[c]) for g, c in zip(grids, cols, strict=True))
         v = pdr["average"][0][where]
@@ -121,12 +133,16 @@ def test_equals_the_definition_built_from_sklearn_partial_dependence():
     f = model.predict(S)
     f = f - f.mean()
     one = {c: pd_at_sample([c]) for c in "abc"}
-    rest = {"a": pd_at_sample(["b", "c"]), "b": pd_at_sample(["a", "c"]), "c": pd_at_sample(["a", "b"])}
+    rest = {
+        "a": pd_at_sample(["b", "c"]),
+        "b": pd_at_sample(["a", "c"]),
+        "c": pd_at_sample(["a", "b"]),
+    }
     for j, c in enumerate("abc"):
-        expected = np.sum((f - one[c] - rest[c]) ** 2) / np.sum(f ** 2)
+        expected = np.sum((f - one[c] - rest[c]) ** 2) / np.sum(f**2)
         assert res.h2_overall[j] == pytest.approx(expected, abs=1e-9)
     joint = pd_at_sample(["a", "b"])
-    expected = np.sum((joint - one["a"] - one["b"]) ** 2) / np.sum(joint ** 2)
+    expected = np.sum((joint - one["a"] - one["b"]) ** 2) / np.sum(joint**2)
     assert res.h2_pairs[0, 1] == pytest.approx(expected, abs=1e-9)
 
 

@@ -16,12 +16,27 @@ def test_same_inputs_same_key_and_any_change_misses():
     assert base == _key(seed=0, grid_size=20, feature="income")  # order does not matter
     assert len(base) == 64
     assert base != _key(feature="income", grid_size=21, seed=0)
-    assert base != cache_key("x" * 64, "d" * 64, "segment: all rows", "partial_dependence",
-                             {"feature": "income", "grid_size": 20, "seed": 0})
-    assert base != cache_key("m" * 64, "d" * 64, "segment: west", "partial_dependence",
-                             {"feature": "income", "grid_size": 20, "seed": 0})
-    assert base != cache_key("m" * 64, "d" * 64, "segment: all rows", "ale",
-                             {"feature": "income", "grid_size": 20, "seed": 0})
+    assert base != cache_key(
+        "x" * 64,
+        "d" * 64,
+        "segment: all rows",
+        "partial_dependence",
+        {"feature": "income", "grid_size": 20, "seed": 0},
+    )
+    assert base != cache_key(
+        "m" * 64,
+        "d" * 64,
+        "segment: west",
+        "partial_dependence",
+        {"feature": "income", "grid_size": 20, "seed": 0},
+    )
+    assert base != cache_key(
+        "m" * 64,
+        "d" * 64,
+        "segment: all rows",
+        "ale",
+        {"feature": "income", "grid_size": 20, "seed": 0},
+    )
     # arrays and numpy scalars are keyed by value
     assert _key(grid=np.array([1.0, 2.0])) == _key(grid=np.array([1.0, 2.0]))
     assert _key(grid=np.array([1.0, 2.0])) != _key(grid=np.array([1.0, 3.0]))
@@ -55,9 +70,21 @@ def test_least_recently_used_leaves_first():
 
 
 def test_disk_copy_survives_a_new_cache(tmp_path):
-    curve = EffectCurve("income", "numeric", np.array([1.0, 2.0]), np.array([0.1, 0.2]),
-                        np.zeros((1, 2)), np.array([0]), np.array([1]), np.array([0.0, 3.0]),
-                        "output", "log-odds of 1", 20, 5, 0)
+    curve = EffectCurve(
+        "income",
+        "numeric",
+        np.array([1.0, 2.0]),
+        np.array([0.1, 0.2]),
+        np.zeros((1, 2)),
+        np.array([0]),
+        np.array([1]),
+        np.array([0.0, 3.0]),
+        "output",
+        "log-odds of 1",
+        20,
+        5,
+        0,
+    )
     key = _key(feature="income")
     ResultCache(folder=tmp_path).put(key, curve)
     assert (tmp_path / f"{key}.pickle").exists()

@@ -1,4 +1,4 @@
-"""``workbench pairs MODEL DATA``: Friedman's H-statistics and the association of the input columns."""
+"""``workbench pairs MODEL DATA``: Friedman's H-statistics and associations of the input columns."""
 
 from __future__ import annotations
 
@@ -18,16 +18,28 @@ from workbench.engine.interactions import h_statistics
 
 
 def register(sub) -> None:
-    p = sub.add_parser("pairs", help="interaction strength (H-statistic) and association of column pairs")
+    p = sub.add_parser(
+        "pairs", help="interaction strength (H-statistic) and association of column pairs"
+    )
     add_model_argument(p)
     add_data_arguments(p)
-    p.add_argument("--sample", type=int, default=300, help="rows in the H-statistic sample (default 300)")
-    p.add_argument("--screen", type=int, default=8,
-                   help="pairs only among this many columns with the strongest overall H (default 8)")
+    p.add_argument(
+        "--sample", type=int, default=300, help="rows in the H-statistic sample (default 300)"
+    )
+    p.add_argument(
+        "--screen",
+        type=int,
+        default=8,
+        help="pairs only among this many columns with the strongest overall H (default 8)",
+    )
     p.add_argument("--seed", type=int, default=0, help="seed for the row sample (default 0)")
     p.add_argument("--scale", choices=SCALES, default="output", help="model scale (default output)")
-    p.add_argument("--block-threshold", type=float, default=0.5,
-                   help="association strength that joins columns into a block (default 0.5)")
+    p.add_argument(
+        "--block-threshold",
+        type=float,
+        default=0.5,
+        help="association strength that joins columns into a block (default 0.5)",
+    )
     add_trust(p)
     add_json(p)
     p.set_defaults(run=run)
@@ -37,15 +49,23 @@ def run(args) -> int:
     loaded, adapter = open_model(args)
     data, _ = open_data(args, adapter)
     x = model_frame(adapter, data.frame)
-    res = h_statistics(adapter, x, sample=args.sample, screen=args.screen, seed=args.seed,
-                       scale=args.scale)
+    res = h_statistics(
+        adapter, x, sample=args.sample, screen=args.screen, seed=args.seed, scale=args.scale
+    )
     assoc, clusters = association_blocks(adapter, x, args.block_threshold)
     payload = {
-        "model": str(loaded.path), "model_sha256": loaded.sha256,
-        "data": str(data.path), "data_sha256": data.sha256,
-        "features": res.features, "order": clusters.order,
-        "sample": res.sample, "screen": res.screen, "seed": res.seed, "scale": res.scale,
-        "units": res.units, "screened": res.screened,
+        "model": str(loaded.path),
+        "model_sha256": loaded.sha256,
+        "data": str(data.path),
+        "data_sha256": data.sha256,
+        "features": res.features,
+        "order": clusters.order,
+        "sample": res.sample,
+        "screen": res.screen,
+        "seed": res.seed,
+        "scale": res.scale,
+        "units": res.units,
+        "screened": res.screened,
         "h_overall": dict(zip(res.features, res.h_overall, strict=True)),
         "h2_overall": dict(zip(res.features, res.h2_overall, strict=True)),
         "h_pairs": [{"a": a, "b": b, "h": h, "h2": h * h} for a, b, h in res.ranked_pairs()],
@@ -55,13 +75,20 @@ def run(args) -> int:
     if args.json:
         print_json(payload)
         return 0
-    print(f"Friedman's H-statistic on {res.sample} rows (seed {res.seed}), {res.units}; "
-          f"pairs among the {len(res.screened)} strongest columns")
-    print_table([{"feature": f, "overall H": float(h)}
-                 for f, h in sorted(payload["h_overall"].items(), key=lambda kv: -kv[1])])
+    print(
+        f"Friedman's H-statistic on {res.sample} rows (seed {res.seed}), {res.units}; "
+        f"pairs among the {len(res.screened)} strongest columns"
+    )
+    print_table(
+        [
+            {"feature": f, "overall H": float(h)}
+            for f, h in sorted(payload["h_overall"].items(), key=lambda kv: -kv[1])
+        ]
+    )
     print()
     print_table([{"pair": f"{p['a']} x {p['b']}", "H": float(p["h"])} for p in payload["h_pairs"]])
     if clusters.blocks:
-        print("\nblocks of associated columns: "
-              + "; ".join(" + ".join(b) for b in clusters.blocks))
+        print(
+            "\nblocks of associated columns: " + "; ".join(" + ".join(b) for b in clusters.blocks)
+        )
     return 0

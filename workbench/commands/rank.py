@@ -23,14 +23,25 @@ def register(sub) -> None:
     p = sub.add_parser("rank", help="rank the input columns by permutation importance")
     add_model_argument(p)
     add_data_arguments(p, target_required=True)
-    p.add_argument("--metric", help="auc, log_loss, brier (classifiers); rmse, mae (regressors); "
-                                    "poisson_deviance (counts); default by task")
+    p.add_argument(
+        "--metric",
+        help="auc, log_loss, brier (classifiers); rmse, mae (regressors); "
+        "poisson_deviance (counts); default by task",
+    )
     p.add_argument("--repeats", type=int, default=5, help="shuffles per column (default 5)")
     p.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
-    p.add_argument("--groups", choices=("auto", "none"), default="auto",
-                   help="auto: also permute blocks of associated columns together (default)")
-    p.add_argument("--group-threshold", type=float, default=0.5,
-                   help="association strength that joins columns into a block (default 0.5)")
+    p.add_argument(
+        "--groups",
+        choices=("auto", "none"),
+        default="auto",
+        help="auto: also permute blocks of associated columns together (default)",
+    )
+    p.add_argument(
+        "--group-threshold",
+        type=float,
+        default=0.5,
+        help="association strength that joins columns into a block (default 0.5)",
+    )
     p.add_argument("--exposure", help="count models: column holding the exposure")
     p.add_argument("--max-rows", type=int, help="score a sample of this many rows")
     add_trust(p)
@@ -61,34 +72,79 @@ def run(args) -> int:
     blocks = []
     if args.groups == "auto":
         blocks = association_blocks(adapter, x, args.group_threshold)[1].blocks
-    result = permutation_importance(adapter, x, frame[data.target], metric=args.metric,
-                                    repeats=args.repeats, seed=args.seed, groups=blocks,
-                                    exposure=exposure, max_rows=args.max_rows)
+    result = permutation_importance(
+        adapter,
+        x,
+        frame[data.target],
+        metric=args.metric,
+        repeats=args.repeats,
+        seed=args.seed,
+        groups=blocks,
+        exposure=exposure,
+        max_rows=args.max_rows,
+    )
     payload = {
-        "model": str(loaded.path), "model_sha256": loaded.sha256,
-        "data": str(data.path), "data_sha256": data.sha256,
-        "metric": result.metric, "higher_is_better": result.greater_is_better,
-        "baseline": result.baseline, "repeats": result.repeats, "seed": result.seed,
-        "rows": result.rows_used, "rows_without_target": dropped,
-        "features": [{"feature": result.features[i], "importance": result.mean[i],
-                      "spread": result.spread[i]} for i in result.order],
-        "groups": [{"features": g.features, "importance": g.mean, "spread": g.spread}
-                   for g in sorted(result.groups, key=lambda g: -g.mean)],
+        "model": str(loaded.path),
+        "model_sha256": loaded.sha256,
+        "data": str(data.path),
+        "data_sha256": data.sha256,
+        "metric": result.metric,
+        "higher_is_better": result.greater_is_better,
+        "baseline": result.baseline,
+        "repeats": result.repeats,
+        "seed": result.seed,
+        "rows": result.rows_used,
+        "rows_without_target": dropped,
+        "features": [
+            {
+                "feature": result.features[i],
+                "importance": result.mean[i],
+                "spread": result.spread[i],
+            }
+            for i in result.order
+        ],
+        "groups": [
+            {"features": g.features, "importance": g.mean, "spread": g.spread}
+            for g in sorted(result.groups, key=lambda g: -g.mean)
+        ],
     }
     if args.json:
         print_json(payload)
         return 0
-    print(f"permutation importance: worsening of {result.metric} when a column is shuffled "
-          f"({result.repeats} repeats, seed {result.seed}, {result.rows_used} rows)")
-    print(f"{result.metric} on the data as it is: {result.baseline:.4g}"
-          + ("" if args.metric else f" (default for a {adapter.task} model: "
-             f"{default_metric(adapter.task)})"))
-    print_table([{"feature": r["feature"], "importance": float(r["importance"]),
-                  "spread": float(r["spread"])} for r in payload["features"]])
+    print(
+        f"permutation importance: worsening of {result.metric} when a column is shuffled "
+        f"({result.repeats} repeats, seed {result.seed}, {result.rows_used} rows)"
+    )
+    print(
+        f"{result.metric} on the data as it is: {result.baseline:.4g}"
+        + (
+            ""
+            if args.metric
+            else f" (default for a {adapter.task} model: {default_metric(adapter.task)})"
+        )
+    )
+    print_table(
+        [
+            {
+                "feature": r["feature"],
+                "importance": float(r["importance"]),
+                "spread": float(r["spread"]),
+            }
+            for r in payload["features"]
+        ]
+    )
     if payload["groups"]:
         print("\nblocks of associated columns shuffled together")
-        print_table([{"block": " + ".join(g["features"]), "importance": float(g["importance"]),
-                      "spread": float(g["spread"])} for g in payload["groups"]])
+        print_table(
+            [
+                {
+                    "block": " + ".join(g["features"]),
+                    "importance": float(g["importance"]),
+                    "spread": float(g["spread"]),
+                }
+                for g in payload["groups"]
+            ]
+        )
     return 0
 
 

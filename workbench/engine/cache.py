@@ -42,8 +42,13 @@ def _plain(value):
     return repr(value)
 
 
-def cache_key(model_sha256: str, data_sha256: str, segment: str | None, function: str,
-              parameters: Mapping | None = None) -> str:
+def cache_key(
+    model_sha256: str,
+    data_sha256: str,
+    segment: str | None,
+    function: str,
+    parameters: Mapping | None = None,
+) -> str:
     """A hex SHA-256 naming one result: same inputs and parameters, same key."""
     payload = {
         "format": CACHE_FORMAT,

@@ -2,12 +2,13 @@
 
 - Partial dependence (PD) and individual conditional expectation (ICE): every row is scored with
   the feature set to each grid value; the ICE line of a row is its scores along the grid and the
-  PD curve is their mean (Friedman 2001, Ann. Statist. 29(5), section 8.2; Goldstein et al. 2015,
-  J. Comput. Graph. Statist. 24(1) for ICE and centred ICE). This is the "brute" method of
-  sklearn.inspection.partial_dependence.
+  PD curve is their mean (Friedman 2001, Ann. Statist. 29(5), section 8.2, numbering from
+  memory; Goldstein et al. 2015, J. Comput. Graph. Statist. 24(1) for ICE and centred ICE).
+  This is the "brute" method of sklearn.inspection.partial_dependence.
 - Pair map: the two-feature partial dependence on a grid of both features.
 - Accumulated local effects (ALE), first order, numeric features, quantile bins (Apley and Zhu
-  2020, J. R. Statist. Soc. B 82(4), section 2.2, eqs. 15 and 16).
+  2020, J. R. Statist. Soc. B 82(4), the uncentred and centred estimators; section and
+  equation numbers cited from memory: section 2.2, eqs. 15 and 16).
 
 All model calls are batched: many modified copies of the rows are stacked into one frame and
 scored once per chunk (:func:`stacked_frame`).
@@ -46,8 +47,10 @@ def model_frame(adapter: ModelAdapter, frame: pd.DataFrame) -> pd.DataFrame:
         x = adapter.prepare(frame)
     else:
         if frame.shape[1] != len(adapter.input_columns):
-            raise InputError(f"the model takes {len(adapter.input_columns)} unnamed columns; "
-                             f"the data has {frame.shape[1]}")
+            raise InputError(
+                f"the model takes {len(adapter.input_columns)} unnamed columns; "
+                f"the data has {frame.shape[1]}"
+            )
         x = frame.set_axis(adapter.input_columns, axis=1)
     if len(x) == 0:
         raise InputError("the data has no rows")
@@ -55,7 +58,7 @@ def model_frame(adapter: ModelAdapter, frame: pd.DataFrame) -> pd.DataFrame:
 
 
 def scorer(adapter: ModelAdapter, scale: str):
-    """The model call for a scale: ``output`` (explained output) or ``response`` (business scale)."""
+    """The model call for a scale: ``output`` (explained output) or ``response`` (business)."""
     if scale == "output":
         return adapter.score
     if scale == "response":
@@ -68,7 +71,7 @@ def scale_units(adapter: ModelAdapter, scale: str) -> str:
 
 
 def values_like(series: pd.Series, values) -> pd.api.extensions.ExtensionArray | np.ndarray:
-    """``values`` as a column of the same kind as ``series`` (numbers stay float, levels keep dtype)."""
+    """``values`` as a column of the kind of ``series`` (numbers as float, levels keep dtype)."""
     dtype = series.dtype
     if pd.api.types.is_numeric_dtype(dtype) and not pd.api.types.is_bool_dtype(dtype):
         arr = np.asarray(values, dtype=float)
@@ -78,8 +81,13 @@ def values_like(series: pd.Series, values) -> pd.api.extensions.ExtensionArray |
     return pd.array(np.asarray(values, dtype=object), dtype=dtype)
 
 
-def stacked_frame(x: pd.DataFrame, base_index: np.ndarray, *, column_index: dict | None = None,
-                  column_values: dict | None = None) -> pd.DataFrame:
+def stacked_frame(
+    x: pd.DataFrame,
+    base_index: np.ndarray,
+    *,
+    column_index: dict | None = None,
+    column_values: dict | None = None,
+) -> pd.DataFrame:
     """Many modified copies of ``x`` as one frame.
 
     Row r of the result takes every column from row ``base_index[r]`` of ``x``, except the columns
@@ -100,8 +108,11 @@ def stacked_frame(x: pd.DataFrame, base_index: np.ndarray, *, column_index: dict
 
 def is_categorical_feature(adapter: ModelAdapter, x: pd.DataFrame, feature: str) -> bool:
     s = x[feature]
-    return (feature in adapter.categorical_columns or not pd.api.types.is_numeric_dtype(s.dtype)
-            or pd.api.types.is_bool_dtype(s.dtype))
+    return (
+        feature in adapter.categorical_columns
+        or not pd.api.types.is_numeric_dtype(s.dtype)
+        or pd.api.types.is_bool_dtype(s.dtype)
+    )
 
 
 def check_feature(adapter: ModelAdapter, x: pd.DataFrame, feature: str) -> None:
@@ -125,8 +136,13 @@ def observed_levels(series: pd.Series) -> np.ndarray:
     return np.asarray(levels, dtype=object)
 
 
-def feature_grid(series: pd.Series, *, categorical: bool, grid_size: int = 20,
-                 percentiles: tuple[float, float] = GRID_PERCENTILES) -> np.ndarray:
+def feature_grid(
+    series: pd.Series,
+    *,
+    categorical: bool,
+    grid_size: int = 20,
+    percentiles: tuple[float, float] = GRID_PERCENTILES,
+) -> np.ndarray:
     """Grid values of a feature (see the module docstring for the rule)."""
     if categorical:
         levels = observed_levels(series)
@@ -169,14 +185,23 @@ def _sample_positions(n: int, size: int | None, generator: np.random.Generator) 
     return np.sort(generator.choice(n, size=int(size), replace=False))
 
 
-def _grid_scores(score, x: pd.DataFrame, settings: dict[str, np.ndarray], n_points: int,
-                 progress, cancel, label: str) -> np.ndarray:
+def _grid_scores(
+    score,
+    x: pd.DataFrame,
+    settings: dict[str, np.ndarray],
+    n_points: int,
+    progress,
+    cancel,
+    label: str,
+) -> np.ndarray:
     """Scores (n_points, n) of every row of ``x`` at each of ``n_points`` settings of columns."""
     n = len(x)
     out = np.empty((n_points, n))
     per_chunk = max(1, CHUNK_ROWS // n)
     for sl in chunk_slices(n_points, per_chunk):
-        step(progress, cancel, sl.start / n_points, f"{label}: {sl.start} of {n_points} grid points")
+        step(
+            progress, cancel, sl.start / n_points, f"{label}: {sl.start} of {n_points} grid points"
+        )
         k = sl.stop - sl.start
         values = {c: np.repeat(np.asarray(v)[sl], n) for c, v in settings.items()}
         frame = stacked_frame(x, np.tile(np.arange(n), k), column_values=values)
@@ -186,7 +211,7 @@ def _grid_scores(score, x: pd.DataFrame, settings: dict[str, np.ndarray], n_poin
 
 
 def centred(ice: np.ndarray) -> np.ndarray:
-    """Centred ICE: each line minus its own value at the first grid point (Goldstein et al. 2015)."""
+    """Centred ICE: each line minus its value at the first grid point (Goldstein et al. 2015)."""
     ice = np.asarray(ice, dtype=float)
     return ice - ice[..., :1]
 
@@ -232,10 +257,19 @@ def _distribution(series: pd.Series, categorical: bool, grid: np.ndarray):
     return counts, edges
 
 
-def partial_dependence(adapter: ModelAdapter, frame: pd.DataFrame, feature: str, *,
-                       grid_size: int = 20, grid: Sequence | None = None,
-                       ice_rows: int | None = 200, seed: int = 0, scale: str = "output",
-                       progress=None, cancel=None) -> EffectCurve:
+def partial_dependence(
+    adapter: ModelAdapter,
+    frame: pd.DataFrame,
+    feature: str,
+    *,
+    grid_size: int = 20,
+    grid: Sequence | None = None,
+    ice_rows: int | None = 200,
+    seed: int = 0,
+    scale: str = "output",
+    progress=None,
+    cancel=None,
+) -> EffectCurve:
     """Partial dependence with ICE lines of ``feature`` on every row of ``frame``.
 
     ``grid`` overrides the grid (values for numeric features, levels for categorical ones).
@@ -247,13 +281,32 @@ def partial_dependence(adapter: ModelAdapter, frame: pd.DataFrame, feature: str,
     x = model_frame(adapter, frame)
     check_feature(adapter, x, feature)
     categorical, values = _grid_values(adapter, x, feature, grid, grid_size)
-    scores = _grid_scores(score, x, {feature: values}, values.size, progress, cancel,
-                          f"partial dependence of {feature}")
+    scores = _grid_scores(
+        score,
+        x,
+        {feature: values},
+        values.size,
+        progress,
+        cancel,
+        f"partial dependence of {feature}",
+    )
     rows = _sample_positions(len(x), ice_rows, rng(seed))
     counts, edges = _distribution(x[feature], categorical, values)
-    return EffectCurve(feature, "categorical" if categorical else "numeric", values,
-                       scores.mean(axis=1), scores[:, rows].T.copy(), rows, counts, edges, scale,
-                       scale_units(adapter, scale), int(grid_size), len(x), int(seed))
+    return EffectCurve(
+        feature,
+        "categorical" if categorical else "numeric",
+        values,
+        scores.mean(axis=1),
+        scores[:, rows].T.copy(),
+        rows,
+        counts,
+        edges,
+        scale,
+        scale_units(adapter, scale),
+        int(grid_size),
+        len(x),
+        int(seed),
+    )
 
 
 # ----------------------------------------------------------------------------- pair map
@@ -276,10 +329,21 @@ class PairMap:
     seed: int
 
 
-def pair_dependence(adapter: ModelAdapter, frame: pd.DataFrame, a: str, b: str, *,
-                    grid_size: int = 12, grid_a: Sequence | None = None,
-                    grid_b: Sequence | None = None, rows: int | None = 500, seed: int = 0,
-                    scale: str = "output", progress=None, cancel=None) -> PairMap:
+def pair_dependence(
+    adapter: ModelAdapter,
+    frame: pd.DataFrame,
+    a: str,
+    b: str,
+    *,
+    grid_size: int = 12,
+    grid_a: Sequence | None = None,
+    grid_b: Sequence | None = None,
+    rows: int | None = 500,
+    seed: int = 0,
+    scale: str = "output",
+    progress=None,
+    cancel=None,
+) -> PairMap:
     """Partial dependence of the pair (``a``, ``b``) on a sample of ``rows`` rows."""
     score = scorer(adapter, scale)
     x = model_frame(adapter, frame)
@@ -292,12 +356,24 @@ def pair_dependence(adapter: ModelAdapter, frame: pd.DataFrame, a: str, b: str, 
     sample = x.iloc[_sample_positions(len(x), rows, rng(seed))].reset_index(drop=True)
     ia, ib = np.meshgrid(np.arange(va.size), np.arange(vb.size), indexing="ij")
     settings = {a: va[ia.ravel()], b: vb[ib.ravel()]}
-    scores = _grid_scores(score, sample, settings, ia.size, progress, cancel,
-                          f"pair map of {a} and {b}")
+    scores = _grid_scores(
+        score, sample, settings, ia.size, progress, cancel, f"pair map of {a} and {b}"
+    )
     values = scores.mean(axis=1).reshape(va.size, vb.size)
-    return PairMap(a, b, "categorical" if cat_a else "numeric",
-                   "categorical" if cat_b else "numeric", va, vb, values, scale,
-                   scale_units(adapter, scale), int(grid_size), len(sample), int(seed))
+    return PairMap(
+        a,
+        b,
+        "categorical" if cat_a else "numeric",
+        "categorical" if cat_b else "numeric",
+        va,
+        vb,
+        values,
+        scale,
+        scale_units(adapter, scale),
+        int(grid_size),
+        len(sample),
+        int(seed),
+    )
 
 
 # ----------------------------------------------------------------------------- ALE
@@ -327,9 +403,16 @@ def ale_edges(values: np.ndarray, bins: int) -> np.ndarray:
     return np.unique(np.quantile(values, np.linspace(0.0, 1.0, int(bins) + 1), method="lower"))
 
 
-def accumulated_local_effects(adapter: ModelAdapter, frame: pd.DataFrame, feature: str, *,
-                              bins: int = 20, scale: str = "output", progress=None,
-                              cancel=None) -> ALECurve:
+def accumulated_local_effects(
+    adapter: ModelAdapter,
+    frame: pd.DataFrame,
+    feature: str,
+    *,
+    bins: int = 20,
+    scale: str = "output",
+    progress=None,
+    cancel=None,
+) -> ALECurve:
     """First-order ALE (Apley and Zhu 2020, eqs. 15 and 16).
 
     Uncentred: g(x) = sum over bins k <= k(x) of the mean, over the rows in bin k, of
@@ -360,12 +443,21 @@ def accumulated_local_effects(adapter: ModelAdapter, frame: pd.DataFrame, featur
         base = np.concatenate([rows, rows])
         setting = np.concatenate([edges[k[sl] - 1], edges[k[sl]]])
         s = np.asarray(score(stacked_frame(x, base, column_values={feature: setting})), dtype=float)
-        diff[sl] = s[rows.size:] - s[: rows.size]
+        diff[sl] = s[rows.size :] - s[: rows.size]
     step(progress, cancel, 1.0, f"ALE of {feature}: done")
     n_bins = edges.size - 1
     counts = np.bincount(k - 1, minlength=n_bins)
     local = np.bincount(k - 1, weights=diff, minlength=n_bins) / counts  # every bin holds its z_k
     uncentred = np.concatenate([[0.0], np.cumsum(local)])
     values = uncentred - float(counts @ uncentred[1:]) / n
-    return ALECurve(feature, edges, values, uncentred, counts, scale, scale_units(adapter, scale),
-                    int(bins), int(n))
+    return ALECurve(
+        feature,
+        edges,
+        values,
+        uncentred,
+        counts,
+        scale,
+        scale_units(adapter, scale),
+        int(bins),
+        int(n),
+    )

@@ -4,7 +4,7 @@ The importance of feature j for one repeat is score(data) - score(data with colu
 with the sign turned for losses so that a positive value always means the model relies on the
 feature; the mean and the standard deviation over repeats are reported. This is the definition
 of sklearn.inspection.permutation_importance (scikit-learn user guide, "Permutation feature
-importance"; Breiman 2001, Machine Learning 45(1), section 10, for random forests).
+importance"; Breiman 2001, Machine Learning 45(1), for random forests; section not checked).
 
 Blocks of features can be permuted together, one row permutation for all columns of the block,
 so that associated features cannot stand in for each other; this gives the importance of the
@@ -82,8 +82,10 @@ def _targets(adapter: ModelAdapter, y, n: int) -> np.ndarray:
     if adapter.classes:
         unknown = ~series.isin(adapter.classes)
         if unknown.any():
-            raise InputError(f"the target holds value(s) that are not classes of the model "
-                             f"{adapter.classes}, for example {series[unknown].iloc[0]!r}")
+            raise InputError(
+                f"the target holds value(s) that are not classes of the model "
+                f"{adapter.classes}, for example {series[unknown].iloc[0]!r}"
+            )
         if adapter.task == "binary":
             return (series == adapter.positive_class).to_numpy(dtype=int)
         return np.asarray(series.tolist())  # native label type, as sklearn.metrics expects
@@ -108,16 +110,28 @@ def _units(features: list[str], groups: Sequence[Sequence[str]] | None) -> list[
             raise InputError("a group of features to permute together is empty")
         unknown = [c for c in block if c not in features]
         if unknown:
-            raise InputError(f"group member(s) not input columns of the model: {', '.join(unknown)}")
+            raise InputError(
+                f"group member(s) not input columns of the model: {', '.join(unknown)}"
+            )
         units.append(block)
     return units
 
 
-def permutation_importance(adapter: ModelAdapter, frame: pd.DataFrame, y, *, metric: str | None = None,
-                           repeats: int = 5, seed: int = 0,
-                           groups: Sequence[Sequence[str]] | None = None, sample_weight=None,
-                           exposure=None, max_rows: int | None = None, progress=None,
-                           cancel=None) -> Importance:
+def permutation_importance(
+    adapter: ModelAdapter,
+    frame: pd.DataFrame,
+    y,
+    *,
+    metric: str | None = None,
+    repeats: int = 5,
+    seed: int = 0,
+    groups: Sequence[Sequence[str]] | None = None,
+    sample_weight=None,
+    exposure=None,
+    max_rows: int | None = None,
+    progress=None,
+    cancel=None,
+) -> Importance:
     """Permutation importance of each input column (and of each block in ``groups``).
 
     ``metric``: ``auc``, ``log_loss`` or ``brier`` for classifiers (on the probability of the
@@ -130,8 +144,9 @@ def permutation_importance(adapter: ModelAdapter, frame: pd.DataFrame, y, *, met
     if int(repeats) < 1:
         raise InputError(f"repeats must be at least 1, not {repeats}")
     name = metric or default_metric(adapter.task)
-    scorer = metric_function(name, adapter.task,
-                             classes=adapter.classes if adapter.task == "multiclass" else None)
+    scorer = metric_function(
+        name, adapter.task, classes=adapter.classes if adapter.task == "multiclass" else None
+    )
     x = model_frame(adapter, frame)
     n_all = len(x)
     target = _targets(adapter, y, n_all)
@@ -155,8 +170,10 @@ def permutation_importance(adapter: ModelAdapter, frame: pd.DataFrame, y, *, met
         weight = None if weight is None else weight[keep]
     n = len(x)
     if name == "auc" and np.unique(target).size < 2:
-        raise InputError("the target holds one class only in these rows; AUC needs both "
-                         "(choose more rows or another metric)")
+        raise InputError(
+            "the target holds one class only in these rows; AUC needs both "
+            "(choose more rows or another metric)"
+        )
     respond = adapter.probabilities if adapter.task == "multiclass" else adapter.response
 
     if name == "auc" and adapter.task == "binary" and weight is None:
@@ -165,6 +182,7 @@ def permutation_importance(adapter: ModelAdapter, frame: pd.DataFrame, y, *, met
         def evaluate(response) -> float:
             return auc_by_ranks(positive, response)
     else:
+
         def evaluate(response) -> float:
             return scorer(target, response, weight)
 
@@ -174,8 +192,12 @@ def permutation_importance(adapter: ModelAdapter, frame: pd.DataFrame, y, *, met
     drops = np.empty(n_tasks)
     per_chunk = max(1, CHUNK_ROWS // n)
     for sl in chunk_slices(n_tasks, per_chunk):
-        step(progress, cancel, sl.start / n_tasks,
-             f"permutation importance: {sl.start} of {n_tasks} shuffles")
+        step(
+            progress,
+            cancel,
+            sl.start / n_tasks,
+            f"permutation importance: {sl.start} of {n_tasks} shuffles",
+        )
         k = sl.stop - sl.start
         base = np.tile(np.arange(n), k)
         column_index: dict[str, np.ndarray] = {}
@@ -183,17 +205,32 @@ def permutation_importance(adapter: ModelAdapter, frame: pd.DataFrame, y, *, met
             perm = generator.permutation(n)  # one permutation per (unit, repeat), in task order
             for c in units[t // int(repeats)]:
                 idx = column_index.setdefault(c, base.copy())
-                idx[b * n:(b + 1) * n] = perm
+                idx[b * n : (b + 1) * n] = perm
         response = respond(stacked_frame(x, base, column_index=column_index))
         for b, t in enumerate(range(sl.start, sl.stop)):
-            permuted = evaluate(response[b * n:(b + 1) * n])
+            permuted = evaluate(response[b * n : (b + 1) * n])
             drops[t] = baseline - permuted if scorer.greater_is_better else permuted - baseline
     step(progress, cancel, 1.0, "permutation importance: done")
     table = drops.reshape(len(units), int(repeats))
     p = x.shape[1]
-    groups_out = [GroupImportance(list(units[u]), table[u].copy(), float(table[u].mean()),
-                                  float(table[u].std())) for u in range(p, len(units))]
-    return Importance(list(x.columns), table[:p].copy(), table[:p].mean(axis=1),
-                      table[:p].std(axis=1), float(baseline), name, scorer.greater_is_better,
-                      int(repeats), int(seed), int(n), groups_out, sample_weight is not None,
-                      exposure is not None)
+    groups_out = [
+        GroupImportance(
+            list(units[u]), table[u].copy(), float(table[u].mean()), float(table[u].std())
+        )
+        for u in range(p, len(units))
+    ]
+    return Importance(
+        list(x.columns),
+        table[:p].copy(),
+        table[:p].mean(axis=1),
+        table[:p].std(axis=1),
+        float(baseline),
+        name,
+        scorer.greater_is_better,
+        int(repeats),
+        int(seed),
+        int(n),
+        groups_out,
+        sample_weight is not None,
+        exposure is not None,
+    )

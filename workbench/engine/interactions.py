@@ -1,8 +1,8 @@
 """Friedman's H-statistic: how much of the model's variation comes from interactions.
 
 Definitions from Friedman and Popescu (2008), "Predictive learning via rule ensembles",
-Ann. Appl. Stat. 2(3), section 8.1, on a sample x_1..x_m of rows, with every partial dependence
-function centred to mean zero over the sample:
+Ann. Appl. Stat. 2(3), section 8 (equation numbers as given in our brief), on a sample
+x_1..x_m of rows, with every partial dependence function centred to mean zero over the sample:
 
 - pairwise (eq. 44): H^2_jk = sum_i [F_jk(x_ij, x_ik) - F_j(x_ij) - F_k(x_ik)]^2
   / sum_i F_jk(x_ij, x_ik)^2;
@@ -73,9 +73,12 @@ class Interactions:
     def ranked_pairs(self) -> list[tuple[str, str, float]]:
         """Computed pairs as (a, b, H), strongest first."""
         h = self.h_pairs
-        out = [(self.features[i], self.features[j], float(h[i, j]))
-               for i in range(len(self.features)) for j in range(i + 1, len(self.features))
-               if np.isfinite(h[i, j])]
+        out = [
+            (self.features[i], self.features[j], float(h[i, j]))
+            for i in range(len(self.features))
+            for j in range(i + 1, len(self.features))
+            if np.isfinite(h[i, j])
+        ]
         return sorted(out, key=lambda t: -t[2])
 
 
@@ -89,14 +92,23 @@ def _ratio(numerator: np.ndarray, denominator: np.ndarray, scale: float) -> floa
     A pair (or feature) whose effect is nil has no interaction to speak of; without the guard
     its H^2 would be rounding noise divided by rounding noise.
     """
-    d = float(np.sum(denominator ** 2))
+    d = float(np.sum(denominator**2))
     if d <= NIL_SHARE * scale:
         return 0.0
-    return float(np.sum(numerator ** 2)) / d
+    return float(np.sum(numerator**2)) / d
 
 
-def _replaced_scores(score, s: pd.DataFrame, columns: list[str], *, progress, cancel,
-                     start: float, width: float, label: str) -> np.ndarray:
+def _replaced_scores(
+    score,
+    s: pd.DataFrame,
+    columns: list[str],
+    *,
+    progress,
+    cancel,
+    start: float,
+    width: float,
+    label: str,
+) -> np.ndarray:
     """M (m, m): M[i, l] = f(row l of ``s`` with ``columns`` taken from row i)."""
     m = len(s)
     out = np.empty((m, m))
@@ -111,9 +123,18 @@ def _replaced_scores(score, s: pd.DataFrame, columns: list[str], *, progress, ca
     return out
 
 
-def h_statistics(adapter: ModelAdapter, frame: pd.DataFrame, *, sample: int = 300,
-                 screen: int | None = 8, features: Sequence[str] | None = None, seed: int = 0,
-                 scale: str = "output", progress=None, cancel=None) -> Interactions:
+def h_statistics(
+    adapter: ModelAdapter,
+    frame: pd.DataFrame,
+    *,
+    sample: int = 300,
+    screen: int | None = 8,
+    features: Sequence[str] | None = None,
+    seed: int = 0,
+    scale: str = "output",
+    progress=None,
+    cancel=None,
+) -> Interactions:
     """Overall H for every feature and pairwise H among the ``screen`` strongest.
 
     ``sample`` rows are drawn with ``seed`` (all rows when there are fewer); the cost is about
@@ -133,10 +154,12 @@ def h_statistics(adapter: ModelAdapter, frame: pd.DataFrame, *, sample: int = 30
     s = x.iloc[pos].reset_index(drop=True)
     m = len(s)
     f_all = _centre(np.asarray(score(s), dtype=float))
-    total_ss = float(np.sum(f_all ** 2))
+    total_ss = float(np.sum(f_all**2))
     if total_ss <= 0:
-        raise InputError("the model gives the same output for every row of the sample; "
-                         "there is nothing to split into effects")
+        raise InputError(
+            "the model gives the same output for every row of the sample; "
+            "there is nothing to split into effects"
+        )
     p = len(feats)
     n_screen = p if screen is None else max(0, min(int(screen), p))
     n_pairs = n_screen * (n_screen - 1) // 2
@@ -145,8 +168,16 @@ def h_statistics(adapter: ModelAdapter, frame: pd.DataFrame, *, sample: int = 30
     h2 = np.empty(p)
     for j, f in enumerate(feats):
         # M[i, l] = f(x_l with feature j from row i): column means F_\j, row means F_j.
-        mat = _replaced_scores(score, s, [f], progress=progress, cancel=cancel,
-                               start=j / total, width=1 / total, label=f"H-statistic: {f}")
+        mat = _replaced_scores(
+            score,
+            s,
+            [f],
+            progress=progress,
+            cancel=cancel,
+            start=j / total,
+            width=1 / total,
+            label=f"H-statistic: {f}",
+        )
         one_way[j] = _centre(mat.mean(axis=1))
         rest = _centre(mat.mean(axis=0))
         h2[j] = _ratio(f_all - one_way[j] - rest, f_all, total_ss)
@@ -155,15 +186,29 @@ def h_statistics(adapter: ModelAdapter, frame: pd.DataFrame, *, sample: int = 30
     chosen = sorted(np.argsort(-strength, kind="stable")[:n_screen].tolist())
     done = p
     for a_pos, j in enumerate(chosen):
-        for k in chosen[a_pos + 1:]:
-            mat = _replaced_scores(score, s, [feats[j], feats[k]], progress=progress,
-                                   cancel=cancel, start=done / total, width=1 / total,
-                                   label=f"H-statistic: {feats[j]} x {feats[k]}")
+        for k in chosen[a_pos + 1 :]:
+            mat = _replaced_scores(
+                score,
+                s,
+                [feats[j], feats[k]],
+                progress=progress,
+                cancel=cancel,
+                start=done / total,
+                width=1 / total,
+                label=f"H-statistic: {feats[j]} x {feats[k]}",
+            )
             joint = _centre(mat.mean(axis=1))
-            pairs[j, k] = pairs[k, j] = _ratio(joint - one_way[j] - one_way[k], joint,
-                                                 total_ss)
+            pairs[j, k] = pairs[k, j] = _ratio(joint - one_way[j] - one_way[k], joint, total_ss)
             done += 1
     step(progress, cancel, 1.0, "H-statistics: done")
-    return Interactions(feats, h2, pairs, [feats[j] for j in chosen], int(m),
-                        None if screen is None else int(screen), int(seed), scale,
-                        scale_units(adapter, scale))
+    return Interactions(
+        feats,
+        h2,
+        pairs,
+        [feats[j] for j in chosen],
+        int(m),
+        None if screen is None else int(screen),
+        int(seed),
+        scale,
+        scale_units(adapter, scale),
+    )
