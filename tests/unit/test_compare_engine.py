@@ -1,4 +1,8 @@
-"""Behaviour of workbench.engine.compare: refusals, cutoffs, determinism, progress and cancel."""
+"""Behaviour of workbench.engine.compare: refusals, cutoffs, determinism, progress and cancel.
+
+(Named test_compare_engine.py: tests/reference/test_compare.py holds the same basename and
+pytest, without __init__.py in these folders, cannot collect two modules of one name.)
+"""
 
 import threading
 
