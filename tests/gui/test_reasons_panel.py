@@ -10,7 +10,7 @@ from workbench.engine.adapter import ModelAdapter
 from workbench.engine.attributions import explain
 from workbench.engine.reasons import FeatureWording, ReasonTemplates
 from workbench.report.render import CAUTIONS
-from workbench.ui.reasons_panel import CaseInputs, ReasonsPanel
+from workbench.ui.reasons_panel import CaseInputs, ReasonsPanel, WordingDialog
 
 
 @pytest.fixture
@@ -73,6 +73,30 @@ def test_flip_without_actionable_features_says_so(qtbot, case):
     item.setCheckState(Qt.CheckState.Checked)
     panel.find_flips()
     assert panel.flips is not None
+
+
+def test_wording_dialog_edits_and_refuses_unknown_placeholders(qtbot, case):
+    panel = ReasonsPanel()
+    qtbot.addWidget(panel)
+    panel.set_case(case)
+    dialog = WordingDialog(case.adapter.input_columns, case.templates, panel)
+    qtbot.addWidget(dialog)
+    first = panel.reasons.reasons[0].feature
+    row = case.adapter.input_columns.index(first)
+    dialog.table.item(row, 1).setText("Late payments")
+    dialog.table.item(row, 4).setText("{name} at {value} {direction} {outcome} ({rank_phrase}).")
+    dialog.outcome.setText("the estimated risk")
+    kept = "debt_ratio" if first != "debt_ratio" else "late"
+    before = case.templates.wording(kept).display_name
+    templates = dialog.result_templates()
+    panel.set_templates(templates)
+    assert templates.wording(kept).display_name == before  # untouched rows keep their wording
+    texts = panel.reasons.texts
+    assert texts[0].startswith("Late payments at ") and texts[0].endswith("(more than any other factor).")
+    assert all("the estimated risk" in t for t in texts)
+    dialog.table.item(row, 4).setText("{nmae} went up")
+    dialog._accept()
+    assert "unknown placeholder" in dialog.problem.text()
 
 
 def test_case_level_loads_a_flip_as_trial_values(demo_window):

@@ -17,9 +17,13 @@ import pandas as pd
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import (
     QAbstractItemView,
+    QDialog,
+    QDialogButtonBox,
+    QFormLayout,
     QHBoxLayout,
     QHeaderView,
     QLabel,
+    QLineEdit,
     QListWidget,
     QListWidgetItem,
     QPushButton,
@@ -92,11 +96,72 @@ def _label(text: str = "", style: str = "") -> QLabel:
     return label
 
 
+class WordingDialog(QDialog):
+    """Edit how reason statements name each feature: display name, unit, number format, sentence."""
+
+    COLUMNS = ("feature", "display name", "unit", "number format", "own sentence (optional)")
+
+    def __init__(self, features, templates: ReasonTemplates, parent=None) -> None:
+        super().__init__(parent)
+        self.setWindowTitle("Wording of the reason statements")
+        self.features = list(features)
+        self.outcome = QLineEdit(templates.outcome or "")
+        self.outcome.setPlaceholderText("e.g. the estimated default risk (empty: named from the model)")
+        self.table = QTableWidget(len(self.features), len(self.COLUMNS))
+        self.table.setHorizontalHeaderLabels(list(self.COLUMNS))
+        self.table.verticalHeader().setVisible(False)
+        self.table.horizontalHeader().setStretchLastSection(True)
+        for i, f in enumerate(self.features):
+            w = templates.wording(f)
+            self.table.setItem(i, 0, _cell(f))
+            for j, text in enumerate((w.display_name, w.unit, w.number_format, w.sentence or ""), 1):
+                self.table.setItem(i, j, QTableWidgetItem(text))
+        self.problem = _label(style="color: #B00020;")
+        hint = _label("Sentences may use {name}, {value}, {unit}, {value_with_unit}, {direction}, "
+                      "{outcome}, {rank}, {rank_phrase} and {contribution}. Number formats are "
+                      "Python formats such as {:.0%} or {:,.0f}.", NOTE)
+        buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Ok
+                                   | QDialogButtonBox.StandardButton.Cancel)
+        buttons.accepted.connect(self._accept)
+        buttons.rejected.connect(self.reject)
+        form = QFormLayout()
+        form.addRow("The score is named", self.outcome)
+        layout = QVBoxLayout(self)
+        layout.addLayout(form)
+        layout.addWidget(self.table, 1)
+        layout.addWidget(hint)
+        layout.addWidget(self.problem)
+        layout.addWidget(buttons)
+        self.resize(820, 480)
+
+    def as_dict(self) -> dict:
+        features = {}
+        for i, f in enumerate(self.features):
+            cells = [self.table.item(i, j).text().strip() if self.table.item(i, j) else ""
+                     for j in range(1, len(self.COLUMNS))]
+            features[f] = dict(zip(("display_name", "unit", "number_format", "sentence"), cells,
+                                   strict=True))
+        return {"outcome": self.outcome.text().strip(), "features": features}
+
+    def result_templates(self) -> ReasonTemplates:
+        """The edited wording (InputError when a sentence or format does not work)."""
+        return ReasonTemplates.from_dict(self.as_dict())
+
+    def _accept(self) -> None:
+        try:
+            self.result_templates()
+        except InputError as exc:
+            self.problem.setText(str(exc))
+            return
+        self.accept()
+
+
 class ReasonsPanel(QWidget):
     """Reason statements (with stability marks), nearest flips and similar rows of one case."""
 
     trial_requested = Signal(dict)  # feature -> value of a flip option, to load as trial values
     row_requested = Signal(int)  # a similar row's position in the data
+    templates_changed = Signal(object)  # the analyst edited the wording (a ReasonTemplates)
 
     def __init__(self, runner=None, parent=None) -> None:
         super().__init__(parent)
@@ -112,6 +177,9 @@ class ReasonsPanel(QWidget):
         self.flag_label = _label(style=FLAG)
         self.flag_label.hide()
         self.stability_button = QPushButton("Check the reasons against other background samples")
+        self.wording_button = QPushButton("Wording…")
+        self.wording_button.setToolTip("Display names, units and sentences of the reason statements")
+        self.templates: ReasonTemplates | None = None  # the analyst's wording, kept across cases
         self.stability_note = _label(style=NOTE)
 
         self.actionable = QListWidget()
@@ -137,8 +205,14 @@ class ReasonsPanel(QWidget):
         flip_controls.addWidget(self.flip_button, 1)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(0, 0, 0, 0)
+        reason_buttons = QHBoxLayout()
+        reason_buttons.addWidget(self.stability_button, 1)
+        reason_buttons.addWidget(self.wording_button)
         for widget in (QLabel("<b>Reason statements</b>"), self.message, self.reason_table,
-                       self.flag_label, self.stability_button, self.stability_note,
+                       self.flag_label):
+            layout.addWidget(widget)
+        layout.addLayout(reason_buttons)
+        for widget in (self.stability_note,
                        QLabel("<b>Nearest flip</b> — actionable features:"), self.actionable):
             layout.addWidget(widget)
         layout.addLayout(flip_controls)
@@ -149,6 +223,7 @@ class ReasonsPanel(QWidget):
 
         self.flip_button.clicked.connect(self.find_flips)
         self.stability_button.clicked.connect(self.check_stability)
+        self.wording_button.clicked.connect(self.edit_wording)
         self.flip_table.cellClicked.connect(self._flip_clicked)
         self.similar_table.cellClicked.connect(self._similar_clicked)
         self.clear("No case chosen.")
@@ -168,7 +243,34 @@ class ReasonsPanel(QWidget):
     def set_case(self, case: CaseInputs, *, actionable=None) -> None:
         """Show the reasons of ``case`` now; similar rows follow (a job over the whole data)."""
         previous = self._ticked() if self.case is not None else None
+        if self.templates is not None:
+            case.templates = self.templates
         self.case, self.stability, self.flips, self.similar = case, None, None, []
+        self._state_reasons()
+        self._fill_actionable(actionable if actionable is not None else previous)
+        self.flip_table.setRowCount(0)
+        self.flip_message.setText("Tick the actionable features and press the button.")
+        self.stability_note.setText("")
+        self._request_similar()
+
+    def set_templates(self, templates: ReasonTemplates) -> None:
+        """Use this wording from now on (restating the current case's reasons)."""
+        self.templates = templates
+        if self.case is not None:
+            self.case.templates = templates
+            self._state_reasons()
+
+    def edit_wording(self) -> None:
+        if self.case is None:
+            return
+        dialog = WordingDialog(self.case.adapter.input_columns, self.case.templates, self)
+        if dialog.exec() == QDialog.DialogCode.Accepted:
+            templates = dialog.result_templates()
+            self.set_templates(templates)
+            self.templates_changed.emit(templates)
+
+    def _state_reasons(self) -> None:
+        case = self.case
         try:
             self.reasons = reason_statements(
                 case.attributions, case.values_row, adapter=case.adapter, cutoff=case.cutoff,
@@ -178,11 +280,6 @@ class ReasonsPanel(QWidget):
             self.reasons = None
             self.message.setText(str(exc))
         self._show_reasons()
-        self._fill_actionable(actionable if actionable is not None else previous)
-        self.flip_table.setRowCount(0)
-        self.flip_message.setText("Tick the actionable features and press the button.")
-        self.stability_note.setText("")
-        self._request_similar()
 
     def _show_reasons(self) -> None:
         result, table = self.reasons, self.reason_table
