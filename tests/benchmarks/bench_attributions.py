@@ -35,20 +35,23 @@ from workbench.engine.attributions import explain, select_background  # noqa: E4
 RUNS = 5
 
 
-def timed(fn, before=None):
-    out = []
+def timed_together(steps):
+    """Time each (label, fn, before) step once per round, RUNS rounds, interleaved so that load
+    from other processes on a shared machine falls on all sides alike."""
+    times = {label: [] for label, _, _ in steps}
     for _ in range(RUNS):
-        if before is not None:
-            before()
-        t0 = time.perf_counter()
-        fn()
-        out.append(time.perf_counter() - t0)
-    return out
+        for label, fn, before in steps:
+            if before is not None:
+                before()
+            t0 = time.perf_counter()
+            fn()
+            times[label].append(time.perf_counter() - t0)
+    return times
 
 
 def show(label, times):
     print(
-        f"  {label:<34} min {min(times):8.4f}  median {statistics.median(times):8.4f}  "
+        f"  {label:<38} min {min(times):8.4f}  median {statistics.median(times):8.4f}  "
         f"max {max(times):8.4f} s"
     )
     return statistics.median(times)
@@ -78,20 +81,29 @@ def bench(name, model, X, rows, form):
     print(f"{name}, {form} form, {len(rows)} rows, background {0 if form == 'path' else 100}")
     direct()
     ours()  # warm-up: imports and first calls
-    t_shap = show("shap.TreeExplainer directly", timed(direct))
-    t_cold = show("explain(tree-reference), cold", timed(ours, tree_module._CACHE.clear))
-    t_warm = show("explain(tree-reference), warm", timed(ours))
-    t_score = show("adapter.score alone (residual check)", timed(lambda: adapter.score(rows)))
+    steps = [
+        ("shap.TreeExplainer directly", direct, None),
+        ("explain(tree-reference), cold", ours, tree_module._CACHE.clear),
+        ("explain(tree-reference), warm", ours, None),
+        ("adapter.score alone (residual check)", lambda: adapter.score(rows), None),
+    ]
+    if tree_module.kernel_supports(model):
+        ours("tree")
+        steps.append(("explain(tree), our kernel, warm", lambda: ours("tree"), None))
+    times = timed_together(steps)
+    med = {label: show(label, t) for label, t in times.items()}
+    t_shap = med["shap.TreeExplainer directly"]
+    t_cold, t_warm = med["explain(tree-reference), cold"], med["explain(tree-reference), warm"]
+    t_score = med["adapter.score alone (residual check)"]
     print(
         f"  overhead ratio cold {t_cold / t_shap:.3f}x, warm {t_warm / t_shap:.3f}x "
         "(target <= 1.1x); "
         f"without the model call for the residual: cold {(t_cold - t_score) / t_shap:.3f}x, "
         f"warm {(t_warm - t_score) / t_shap:.3f}x"
     )
-    if tree_module.kernel_supports(model):
-        ours("tree")
-        t_kernel = show("explain(tree), our kernel, warm", timed(lambda: ours("tree")))
-        print(f"  our kernel vs shap directly {t_kernel / t_shap:.3f}x")
+    kernel = med.get("explain(tree), our kernel, warm")
+    if kernel is not None:
+        print(f"  our kernel vs shap directly {kernel / t_shap:.3f}x")
 
 
 def main() -> None:
