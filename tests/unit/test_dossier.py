@@ -8,6 +8,7 @@ import pytest
 import skops.io as sio
 from sklearn.compose import ColumnTransformer
 from sklearn.linear_model import LogisticRegression
+from sklearn.metrics import roc_auc_score
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import OneHotEncoder, StandardScaler
 
@@ -75,6 +76,12 @@ def test_every_section_is_present_with_a_table_of_contents(project):
                                                  "leakage", "calibration", "additivity"}
     assert ctx["performance"]["interval"]["low"] <= ctx["performance"]["interval"]["auc"]
     assert ctx["performance"]["interval"]["auc"] <= ctx["performance"]["interval"]["high"]
+    frame = pd.read_csv(project.input_path("data"))
+    from workbench.engine.adapter import ModelAdapter
+    from workbench.engine.loading import load_model
+
+    p = ModelAdapter(load_model(project.input_path("model_a")).estimator).response(frame)
+    assert ctx["performance"]["interval"]["auc"] == pytest.approx(roc_auc_score(frame["bad"], p))
     assert ctx["datasets"][0]["period"] == {"column": "month", "first": "2024-01", "last": "2024-03"}
     assert len(ctx["cases"]) == 2 and ctx["versions"] is None
     assert any(e["what"].startswith("dossier:") for e in project.audit)

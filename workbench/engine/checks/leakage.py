@@ -75,7 +75,8 @@ def check_leakage(adapter, frame: pd.DataFrame, y, *, sample: int = 2000, seed: 
                 "metric": imp.metric, "baseline": imp.baseline}
     parameters = {"dominance": dominance, "single_auc": single_auc, "repeats": repeats,
                   "rows": imp.rows_used, "rows_in_data": int(len(x)), "seed": int(seed),
-                  "sampled": bool(imp.rows_used < len(x))}
+                  "sampled": bool(imp.rows_used < len(x)),
+                  "single_feature_auc_computed": adapter.task == "binary"}
     plot = {"kind": "bars", "labels": [r["feature"] for r in ranked],
             "values": [r["importance"] for r in ranked], "errors": [r["spread"] for r in ranked],
             "xlabel": f"permutation importance (worsening of {imp.metric})",

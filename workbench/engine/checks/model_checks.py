@@ -9,6 +9,7 @@ from workbench.engine.attributions import explain
 from workbench.engine.checks.result import CheckResult
 from workbench.engine.effects import model_frame
 from workbench.engine.errors import InputError
+from workbench.engine.jobs import rng
 from workbench.engine.metrics import calibration_table
 
 
@@ -25,7 +26,7 @@ def check_additivity(adapter, frame: pd.DataFrame, *, background=None, rows: int
     n = len(x)
     picked = np.arange(n)
     if n > rows:
-        picked = np.sort(np.random.default_rng(seed).choice(n, size=int(rows), replace=False))
+        picked = np.sort(rng(seed).choice(n, size=int(rows), replace=False))
     result = explain(adapter, x.iloc[picked].reset_index(drop=True), background=background,
                      background_size=background_size, seed=seed, progress=progress,
                      cancel=cancel)

@@ -30,6 +30,7 @@ import pandas as pd
 from workbench.engine.checks.result import CheckResult
 from workbench.engine.effects import is_categorical_feature, model_frame, partial_dependence
 from workbench.engine.errors import InputError
+from workbench.engine.jobs import rng
 
 DIRECTIONS = ("increasing", "decreasing", "none")
 GRID_QUANTILES = (0.005, 0.995)
@@ -88,7 +89,7 @@ def check_monotonicity(adapter, frame: pd.DataFrame, feature: str, direction: st
     n = len(x)
     picked = np.arange(n)
     if rows is not None and n > rows:
-        picked = np.sort(np.random.default_rng(seed).choice(n, size=int(rows), replace=False))
+        picked = np.sort(rng(seed).choice(n, size=int(rows), replace=False))
     sample = x.iloc[picked].reset_index(drop=True)
     grid = monotonicity_grid(x[feature], grid_size)
     curve = partial_dependence(adapter, sample, feature, grid=grid, ice_rows=None, seed=seed,
