@@ -122,3 +122,10 @@ def test_opening_a_project_with_a_changed_input_relinks_or_stops(window, small_f
     assert project.notes == "first session" and project.audit[-1]["what"] == "re-link input"
     assert fresh.ctx.workspace.data is not None and fresh.ctx.workspace.adapter("A") is not None
     assert fresh.ctx.workspace.settings.target == "bad"
+
+
+def test_file_menu_offers_the_project_file(window):
+    file_menu = window.menuBar().actions()[0].menu()
+    texts = [a.text() for a in file_menu.actions()]
+    assert "Open project…" in texts and "Save project…" in texts
+    assert texts.index("Open project…") < texts.index("Quit")

@@ -129,6 +129,10 @@ class MainWindow(QMainWindow):
         self.recent_menu = file_menu.addMenu("Recent files")
         self._fill_recent()
         file_menu.addSeparator()
+        for level in self.levels.values():  # levels may offer File entries (the project file)
+            for text, slot in getattr(level, "file_actions", list)():
+                self._action(file_menu, text, slot)
+        file_menu.addSeparator()
         self._action(file_menu, "Quit", self.close, QKeySequence.StandardKey.Quit)
 
         go = self.menuBar().addMenu("&Go")
