@@ -190,3 +190,17 @@ def test_save_interrupted_at_random_points_leaves_old_or_new(tmp_path):
         assert project.cases == list(range(version, 20_000, 2))
     leftovers = [p for p in tmp_path.iterdir() if p.name != "p.wbench"]
     assert all(p.name.startswith(".p.wbench.") and p.suffix == ".tmp" for p in leftovers)
+
+
+def test_old_leftovers_of_killed_saves_are_removed(tmp_path):
+    path = tmp_path / "p.wbench"
+    old = tmp_path / ".p.wbench.abc123.tmp"
+    young = tmp_path / ".p.wbench.def456.tmp"
+    other = tmp_path / ".q.wbench.abc123.tmp"
+    for f in (old, young, other):
+        f.write_text("{half")
+    long_ago = time.time() - 3600
+    os.utime(old, (long_ago, long_ago))
+    os.utime(other, (long_ago, long_ago))
+    save_project(Project(), path)
+    assert not old.exists() and young.exists() and other.exists()

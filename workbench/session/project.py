@@ -15,9 +15,11 @@ caller re-links (:meth:`Project.relink`) or stops.
 
 from __future__ import annotations
 
+import glob
 import json
 import os
 import tempfile
+import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -196,7 +198,22 @@ def write_atomically(text: str, path: Path) -> Path:
             pass
         raise
     _fsync_folder(folder)
+    _remove_leftovers(path)
     return path
+
+
+LEFTOVER_AGE_S = 600  # temporary files of saves cut off this long ago are no one's any more
+
+
+def _remove_leftovers(path: Path) -> None:
+    """Delete temporary files that saves of ``path`` killed mid-write left behind."""
+    now = time.time()
+    for tmp in path.parent.glob(f".{glob.escape(path.name)}.*.tmp"):
+        try:
+            if now - tmp.stat().st_mtime > LEFTOVER_AGE_S:
+                tmp.unlink()
+        except OSError:
+            pass
 
 
 def _serialise(project: Project) -> str:
