@@ -468,19 +468,16 @@ def compare_versions(adapter_a: ModelAdapter, adapter_b: ModelAdapter, frame: pd
         metric_target = target / w
     classes = list(adapter_a.classes) if multiclass else None
 
-    def headline(resp):
+    def headline(resp, cut):
         if task == "count":
             return metrics_for_task(task, target, resp, exposure=w)
+        # the confusion counts at the cutoff exist for binary models only
         return metrics_for_task(task, target, resp, sample_weight=w, classes=classes,
-                                cutoff=None, adverse_if=adverse_if)
+                                cutoff=cut if task == "binary" else None,
+                                adverse_if=adverse_if)
 
-    metrics_a = headline(proba_a if multiclass else response_a)
-    metrics_b = headline(proba_b if multiclass else response_b)
-    if task == "binary" and cut_a is not None:
-        metrics_a = metrics_for_task(task, target, response_a, sample_weight=w, cutoff=cut_a,
-                                     adverse_if=adverse_if)
-        metrics_b = metrics_for_task(task, target, response_b, sample_weight=w, cutoff=cut_b,
-                                     adverse_if=adverse_if)
+    metrics_a = headline(proba_a if multiclass else response_a, cut_a)
+    metrics_b = headline(proba_b if multiclass else response_b, cut_b)
     compared = COMPARED_METRICS[task]
     difference = {k: float(metrics_b[k] - metrics_a[k]) for k, _ in compared}
     intervals = paired_intervals(
