@@ -20,7 +20,7 @@ import numpy as np
 from workbench.commands.common import print_table
 from workbench.engine.errors import InputError
 from workbench.engine.explanation_stability import reason_stability
-from workbench.engine.flips import nearest_flips
+from workbench.engine.flips import nearest_flips, score_text
 from workbench.engine.reasons import DEFAULT_REASONS, ReasonTemplates, reason_statements
 from workbench.engine.similar import similar_rows, similar_summary
 from workbench.report.render import CAUTIONS
@@ -221,7 +221,8 @@ def print_why(payload: dict) -> None:
         print(payload["flip_message"])
         for i, o in enumerate(payload["flip"], start=1):
             moves = "; ".join(f"{c['feature']} {c['from']} -> {c['to']}" for c in o["changes"])
-            print(f"  option {i}: {moves}  (score {o['new_prediction']:.4g}, distance {o['distance']:.3g})")
+            score = score_text(o["new_prediction"], payload["cutoff"])
+            print(f"  option {i}: {moves}  (score {score}, distance {o['distance']:.3g})")
     if payload.get("similar"):
         print(payload["similar_summary"])
         print_table(payload["similar"], ["row", "distance", "prediction", "label"])

@@ -289,6 +289,15 @@ class _Scorer:
         return sum(self.features[f].term(v) for f, v in changes.items())
 
 
+def score_text(value: float, cutoff: float, digits: int = 4) -> str:
+    """``value`` with enough digits that it does not read as the cutoff (0.19996, not 0.2)."""
+    for d in range(digits, 13):
+        text = f"{value:.{d}g}"
+        if float(text) != cutoff or value == cutoff:
+            return text
+    return repr(float(value))
+
+
 def _key(changes: Mapping) -> frozenset:
     return frozenset((f, repr(v)) for f, v in changes.items())
 
@@ -545,4 +554,4 @@ def _diverse(candidates: list[dict], n: int) -> list[dict]:
     return chosen
 
 
-__all__ = ["DEFAULT_QUANTILES", "FlipOption", "FlipResult", "nearest_flips"]
+__all__ = ["DEFAULT_QUANTILES", "FlipOption", "FlipResult", "nearest_flips", "score_text"]

@@ -16,6 +16,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from workbench.engine.flips import score_text
 from workbench.engine.reasons import ReasonTemplates, format_value
 from workbench.report import charts
 from workbench.report.render import png_data_uri, render_html, write_report
@@ -135,7 +136,7 @@ def _flips(flips, templates) -> dict | None:
                     "before": _shown(a, _precise(templates.wording(f))),
                     "after": _shown(b, _precise(templates.wording(f)))}
                    for f, a, b in o.changes]
-        options.append({"changes": changes, "new_prediction": o.new_response,
+        options.append({"changes": changes, "new_prediction": score_text(o.new_response, flips.cutoff),
                         "distance": o.distance})
     moved = ", ".join(templates.wording(f).display_name for f in flips.actionable)
     rules = (f"Only these features were allowed to change: {moved}; at most {flips.max_changes} "

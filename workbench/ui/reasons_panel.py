@@ -37,7 +37,7 @@ from PySide6.QtWidgets import (
 
 from workbench.engine.errors import InputError
 from workbench.engine.explanation_stability import reason_stability
-from workbench.engine.flips import nearest_flips
+from workbench.engine.flips import nearest_flips, score_text
 from workbench.engine.reasons import ReasonTemplates, reason_statements
 from workbench.engine.similar import similar_rows, similar_summary
 from workbench.report.render import CAUTIONS
@@ -67,17 +67,34 @@ class CaseInputs:
     key: tuple = ()
 
 
-def _table(headers: list[str]) -> QTableWidget:
+def _table(headers: list[str], stretch: int | None = None) -> QTableWidget:
+    """A read-only table; column ``stretch`` takes the free width and wraps its text."""
     table = QTableWidget(0, len(headers))
     table.setHorizontalHeaderLabels(headers)
     table.verticalHeader().setVisible(False)
     table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
     table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
     table.setWordWrap(True)
+    table.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
     header = table.horizontalHeader()
     header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
-    header.setStretchLastSection(True)
+    if stretch is None:
+        header.setStretchLastSection(True)
+    else:
+        header.setSectionResizeMode(stretch, QHeaderView.ResizeMode.Stretch)
+    header.sectionResized.connect(lambda *_: _fit(table))
     return table
+
+
+def _fit(table: QTableWidget, least_rows: int = 1) -> None:
+    """Rows sized to their wrapped text, the table as tall as its rows (no inner scrolling)."""
+    table.resizeRowsToContents()
+    height = table.horizontalHeader().height() + 2 * table.frameWidth() + 2
+    rows = table.rowCount()
+    height += sum(table.rowHeight(i) for i in range(rows))
+    if rows < least_rows:
+        height += (least_rows - rows) * table.verticalHeader().defaultSectionSize()
+    table.setFixedHeight(height)
 
 
 def _cell(text) -> QTableWidgetItem:
@@ -173,10 +190,12 @@ class ReasonsPanel(QWidget):
         self.similar: list = []
 
         self.message = _label()
-        self.reason_table = _table(["rank", "reason statement", "stable"])
+        self.reason_table = _table(["rank", "reason statement", "stable"], stretch=1)
         self.flag_label = _label(style=FLAG)
         self.flag_label.hide()
-        self.stability_button = QPushButton("Check the reasons against other background samples")
+        self.stability_button = QPushButton("Check stability")
+        self.stability_button.setToolTip("Re-explain the case with other background samples and mark "
+                                         "reasons whose rank changes")
         self.wording_button = QPushButton("Wording…")
         self.wording_button.setToolTip("Display names, units and sentences of the reason statements")
         self.templates: ReasonTemplates | None = None  # the analyst's wording, kept across cases
@@ -192,11 +211,11 @@ class ReasonsPanel(QWidget):
         self.max_changes.setSuffix(" changes")
         self.flip_button = QPushButton("Find the nearest flip")
         self.flip_message = _label(style=NOTE)
-        self.flip_table = _table(["option", "changes", "new score", "distance"])
+        self.flip_table = _table(["option", "changes", "new score", "distance"], stretch=1)
         self.flip_note = _label("Click an option to load it as trial values.", NOTE)
 
         self.similar_message = _label(style=NOTE)
-        self.similar_table = _table(["row", "Gower distance", "score", "label"])
+        self.similar_table = _table(["row", "Gower distance", "score", "label"], stretch=3)
         self.similar_note = _label("Click a row to open it as the case.", NOTE)
         self.cautions = _label(" ".join(CAUTIONS), CAUTION)
 
@@ -232,9 +251,9 @@ class ReasonsPanel(QWidget):
     def clear(self, message: str) -> None:
         self.case, self.reasons, self.stability, self.flips, self.similar = None, None, None, None, []
         self.message.setText(message)
-        self.reason_table.setRowCount(0)
-        self.flip_table.setRowCount(0)
-        self.similar_table.setRowCount(0)
+        for table in (self.reason_table, self.flip_table, self.similar_table):
+            table.setRowCount(0)
+            _fit(table)
         self.flag_label.hide()
         self.flip_message.setText("")
         self.stability_note.setText("")
@@ -298,7 +317,7 @@ class ReasonsPanel(QWidget):
             table.setItem(i, 1, _cell(reason.text))
             mark = "—" if self.stability is None else ("not stable" if reason.feature in unstable else "yes")
             table.setItem(i, 2, _cell(mark))
-        table.resizeRowsToContents()
+        _fit(table)
         if result.flagged_not_allowed:
             self.flag_label.setText("For the analyst, not for the applicant: "
                                     + " ".join(f.text for f in result.flagged_not_allowed))
@@ -380,10 +399,10 @@ class ReasonsPanel(QWidget):
         for i, option in enumerate(result.options):
             moves = "; ".join(f"{wording(f).display_name if wording else f}: {a} → {b}"
                               for f, a, b in option.changes)
-            for j, text in enumerate((i + 1, moves, f"{option.new_response:.4g}",
+            for j, text in enumerate((i + 1, moves, score_text(option.new_response, result.cutoff),
                                       f"{option.distance:.3g}")):
                 table.setItem(i, j, _cell(text))
-        table.resizeRowsToContents()
+        _fit(table)
 
     def _flip_clicked(self, row: int, _column: int) -> None:
         if self.flips is not None and 0 <= row < len(self.flips.options):
@@ -454,6 +473,7 @@ class ReasonsPanel(QWidget):
             label = "—" if s.label is None else s.label
             for j, text in enumerate((s.row, f"{s.distance:.3g}", pred, label)):
                 table.setItem(i, j, _cell(text))
+        _fit(table)
 
     def _similar_clicked(self, row: int, _column: int) -> None:
         if 0 <= row < len(self.similar):
@@ -464,6 +484,7 @@ def scrolled(panel: QWidget) -> QScrollArea:
     """The panel in a scroll area, for a narrow pane beside the contribution bars."""
     area = QScrollArea()
     area.setWidgetResizable(True)
+    area.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
     area.setWidget(panel)
     area.setMinimumWidth(320)
     return area

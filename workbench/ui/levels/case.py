@@ -126,7 +126,7 @@ class CaseLevel(Level):
         self.reasons_panel.trial_requested.connect(lambda values: load_trial_values(self.table, values))
         self.reasons_panel.row_requested.connect(lambda row: self.go(row=int(row)))
         split.addWidget(scrolled(self.reasons_panel))
-        split.setSizes([380, 900])
+        split.setSizes([380, 900, 420])
         layout = QVBoxLayout(self)
         layout.addLayout(top)
         layout.addWidget(split, 1)
