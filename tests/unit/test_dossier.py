@@ -84,6 +84,8 @@ def test_every_section_is_present_with_a_table_of_contents(project):
     assert ctx["performance"]["interval"]["auc"] == pytest.approx(roc_auc_score(frame["bad"], p))
     assert ctx["datasets"][0]["period"] == {"column": "month", "first": "2024-01", "last": "2024-03"}
     assert len(ctx["cases"]) == 2 and ctx["versions"] is None
+    assert all(c["reasons_message"] and c["inputs"] for c in ctx["cases"])  # via the case sheet
+    assert {i["name"] for i in ctx["cases"][0]["inputs"]} >= {f"Debt {EVIL}", "region"}
     assert any(e["what"].startswith("dossier:") for e in project.audit)
     assert "screening indicator" in html
 

@@ -363,7 +363,23 @@ class _Builder:
                 "moved_share": c.moved_share, "moved_threshold": c.moved_threshold,
                 "swap": _plain(swap), "notes": list(c.notes), "rows": c.n}
 
+    def templates(self):
+        """The project's reason wording (``ReasonTemplates.to_dict`` form), display names as a
+        fallback for the names."""
+        from workbench.engine.reasons import FeatureWording, ReasonTemplates
+
+        try:
+            templates = ReasonTemplates.from_dict(self.project.reason_templates or {})
+        except InputError:
+            templates = ReasonTemplates()
+        for column in self.project.display_names:
+            if column not in templates.features:
+                templates = templates.with_feature(column, FeatureWording(self.label(column)))
+        return templates
+
     def cases(self):
+        from dataclasses import replace
+
         from workbench.engine.attributions import explain
 
         adapter = self.inputs.adapter_a
@@ -380,20 +396,43 @@ class _Builder:
                 "method": attrs.method})
         ids = self.inputs.data.ids
         response = adapter.response(self.frame.iloc[rows])
+        sheet = _case_sheet_module() if self.cutoff is not None else None
+        templates = self.templates() if sheet is not None else None
         for k, r in enumerate(rows):
-            png = charts.contribution_bars([self.label(f) for f in attrs.features],
-                                           attrs.values[k], base_value=attrs.base_value,
-                                           output=float(attrs.output[k]), units=adapter.output_units,
-                                           title="Contribution bars")
-            decision = None
-            if self.cutoff is not None:
-                from workbench.engine.metrics import adverse_decision
+            entry = {"row": r, "id": None if ids is None else str(ids.iloc[r]),
+                     "response": float(response[k]), "decision": None, "method": attrs.method,
+                     "reasons": [], "reasons_message": None, "inputs": []}
+            if sheet is not None:
+                # the case sheet's own gathering: reason statements and values in its wording
+                from workbench.engine.reasons import reason_statements
 
-                adverse = bool(adverse_decision([response[k]], self.cutoff, self.adverse_if)[0])
-                decision = "adverse side of the cutoff" if adverse else "favourable side of the cutoff"
-            out.append({"row": r, "id": None if ids is None else str(ids.iloc[r]),
-                        "response": float(response[k]), "decision": decision,
-                        "picture": png_data_uri(png), "method": attrs.method})
+                one = replace(attrs, values=attrs.values[k:k + 1], output=attrs.output[k:k + 1],
+                              residual=attrs.residual[k:k + 1])
+                values_row = self.frame.iloc[[r]][adapter.input_columns].reset_index(drop=True)
+                reasons = reason_statements(one, values_row, adapter=adapter, cutoff=self.cutoff,
+                                            adverse_if=self.adverse_if, templates=templates,
+                                            response=float(response[k]))
+                ctx = sheet.case_sheet_context(adapter=adapter, values_row=values_row,
+                                               attributions=one, cutoff=self.cutoff,
+                                               adverse_if=self.adverse_if, reasons=reasons,
+                                               templates=templates, row=r)
+                entry.update(picture=ctx["bars_png"], decision=ctx["score"]["decision"],
+                             reasons=[s["text"] for s in ctx["reasons"]["statements"]],
+                             reasons_message=ctx["reasons"]["message"], inputs=ctx["inputs"])
+            else:
+                png = charts.contribution_bars([self.label(f) for f in attrs.features],
+                                               attrs.values[k], base_value=attrs.base_value,
+                                               output=float(attrs.output[k]),
+                                               units=adapter.output_units,
+                                               title="Contribution bars")
+                entry["picture"] = png_data_uri(png)
+                if self.cutoff is not None:
+                    from workbench.engine.metrics import adverse_decision
+
+                    adverse = bool(adverse_decision([response[k]], self.cutoff, self.adverse_if)[0])
+                    entry["decision"] = ("adverse side of the cutoff" if adverse
+                                         else "favourable side of the cutoff")
+            out.append(entry)
         return out
 
     def build(self) -> dict:
@@ -447,6 +486,14 @@ class _Builder:
         ctx["settings"] = {k: ("" if v is None else str(v)) for k, v in project.settings.items()}
         ctx["project_file"] = project.path.name if project.path else ""
         return ctx
+
+
+def _case_sheet_module():
+    """``workbench.report.case_sheet`` when this build has it, else None."""
+    try:
+        return importlib.import_module("workbench.report.case_sheet")
+    except ImportError:
+        return None
 
 
 def dossier_context(project: Project, inputs: DossierInputs | None = None, *, trust: bool = False,
