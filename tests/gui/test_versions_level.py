@@ -113,3 +113,15 @@ def test_cancelled_comparison_says_so_and_runs_again(versions):
     level.again.click()
     assert window.ctx.runner.wait_idle(300)
     assert level.comparison is not None and level.metrics_table.rowCount() == 5
+
+
+def test_scatter_is_thinned_above_its_point_limit(versions, monkeypatch):
+    from workbench.ui.levels import versions as module
+
+    window, level = versions
+    monkeypatch.setattr(module, "MAX_SCATTER_POINTS", 120)
+    level._draw_scatter(level.comparison)
+    points = sum(len(i.data) for i in level.scatter.plot.items
+                 if isinstance(i, pg.ScatterPlotItem))
+    assert points == 120
+    assert "120 of 300 rows shown (seeded sample)" in level.scatter.title
