@@ -265,3 +265,29 @@ def test_demo_challenger_leak_and_non_monotone_age_are_found(demo):
     lo, hi = age.evidence["effect_curve_between"]
     assert 35 <= lo <= 55 and hi > lo
     assert check_monotonicity(adapter, cur, LENDING_LEAK, "increasing").status == "pass"
+
+
+# ----------------------------------------------------------------------------- calibration
+def test_calibration_check_passes_a_calibrated_model_and_fails_a_shifted_one():
+    """Labels drawn as Bernoulli(p) from the model's own probability are calibrated by
+    construction; labels drawn from sigmoid(x + 1) are under-predicted by about 10 points in the
+    upper deciles. Hosmer-Lemeshow statistic as in Hosmer and Lemeshow, Applied Logistic
+    Regression, 2nd ed., 2000, section 5.2.2, recomputed here by hand; the status limits are
+    common practice, no source."""
+    from workbench.engine.checks import check_calibration
+
+    adapter = _sigmoid_model()
+    rng = np.random.default_rng(11)
+    x = pd.DataFrame({"x": rng.normal(-1.0, 1.5, 20_000)})
+    p = 1 / (1 + np.exp(-x["x"].to_numpy()))
+    calibrated = (rng.random(len(x)) < p).astype(int)
+    good = check_calibration(adapter, x, calibrated)
+    assert good.status in ("pass", "warn")
+    shifted = (rng.random(len(x)) < 1 / (1 + np.exp(-(x["x"].to_numpy() + 1)))).astype(int)
+    bad = check_calibration(adapter, x, shifted)
+    assert bad.status == "fail" and bad.evidence["p_value"] < 1e-6
+    groups = bad.evidence["groups"]
+    hand = sum((g["observed"] * g["rows"] - g["expected"] * g["rows"]) ** 2
+               / (g["expected"] * g["rows"] * (1 - g["expected"])) for g in groups)
+    assert bad.evidence["hosmer_lemeshow"] == pytest.approx(hand, rel=1e-9)
+    assert bad.evidence["dof"] == len(groups) - 2

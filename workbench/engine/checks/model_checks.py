@@ -57,9 +57,11 @@ def check_calibration(adapter, frame: pd.DataFrame, y01: np.ndarray, *, bins: in
 
     With many rows the test rejects departures too small to matter (a known property of the
     test in large samples), so a failure also needs a decile whose observed rate is ``gap``
-    (default 0.05, five percentage points) or more away from the mean prediction: pass when
-    the test's p-value is at least ``p_value`` (0.05); warn when it is lower but no decile is
-    that far off; fail otherwise (common practice, no source).
+    (default 0.05, five percentage points) or more away from the mean prediction *and* more
+    than two binomial standard errors, sqrt(e (1 - e) / n) with e the decile's mean
+    prediction and n its rows, so that a small decile's noise is not taken for a fault: pass
+    when the test's p-value is at least ``p_value`` (0.05); warn when it is lower but no decile
+    is off by that much; fail otherwise (common practice, no source).
     """
     if adapter.task != "binary":
         raise InputError("the calibration check needs a binary classifier")
@@ -69,7 +71,8 @@ def check_calibration(adapter, frame: pd.DataFrame, y01: np.ndarray, *, bins: in
     t = calibration_table(y01, p, bins=bins)
     gaps = t.observed_rate - t.mean_predicted
     worst = int(np.argmax(np.abs(gaps)))
-    big = abs(float(gaps[worst])) >= gap
+    std_error = np.sqrt(t.mean_predicted * (1 - t.mean_predicted) / t.count)
+    big = bool(np.any((np.abs(gaps) >= gap) & (np.abs(gaps) > 2 * std_error)))
     if not t.p_value < p_value:
         status = "pass"
     else:
@@ -78,7 +81,8 @@ def check_calibration(adapter, frame: pd.DataFrame, y01: np.ndarray, *, bins: in
                f"largest gap {gaps[worst]:+.3f} in group {worst + 1} of {len(gaps)}")
     groups = [{"group": i + 1, "lowest_score": float(t.lower[i]), "highest_score": float(t.upper[i]),
                "rows": float(t.count[i]), "expected": float(t.mean_predicted[i]),
-               "observed": float(t.observed_rate[i]), "gap": float(gaps[i])}
+               "observed": float(t.observed_rate[i]), "gap": float(gaps[i]),
+               "standard_error": float(std_error[i])}
               for i in range(len(gaps))]
     evidence = {"hosmer_lemeshow": t.hosmer_lemeshow, "dof": t.dof, "p_value": t.p_value,
                 "largest_gap": float(gaps[worst]), "groups": groups,
