@@ -121,3 +121,18 @@ def test_case_level_loads_a_flip_as_trial_values(demo_window):
     panel.flip_table.cellClicked.emit(0, 1)
     assert set(case.trial) == set(option.features)
     assert case.trial_score < cutoff <= case.data_score
+
+
+def test_marking_a_feature_not_allowed_restates_the_reasons(qtbot, case):
+    panel = ReasonsPanel()
+    qtbot.addWidget(panel)
+    panel.set_case(case, actionable=["debt_ratio", "late", "income"])
+    first = panel.reasons.reasons[0].feature
+    row = case.adapter.input_columns.index(first)
+    with qtbot.waitSignal(panel.not_allowed_changed) as signal:
+        panel.not_allowed_list.item(row).setCheckState(Qt.CheckState.Checked)
+    assert signal.args[0] == (first,)
+    assert first not in [r.feature for r in panel.reasons.reasons]
+    assert first not in panel._ticked()  # a flip never changes a not-allowed feature
+    texts = [panel.reason_table.item(i, 1).text() for i in range(panel.reason_table.rowCount())]
+    assert texts == panel.reasons.texts

@@ -179,6 +179,7 @@ class ReasonsPanel(QWidget):
     trial_requested = Signal(dict)  # feature -> value of a flip option, to load as trial values
     row_requested = Signal(int)  # a similar row's position in the data
     templates_changed = Signal(object)  # the analyst edited the wording (a ReasonTemplates)
+    not_allowed_changed = Signal(tuple)  # the features the analyst marked not allowed
 
     def __init__(self, runner=None, parent=None) -> None:
         super().__init__(parent)
@@ -199,6 +200,12 @@ class ReasonsPanel(QWidget):
         self.wording_button = QPushButton("Wording…")
         self.wording_button.setToolTip("Display names, units and sentences of the reason statements")
         self.templates: ReasonTemplates | None = None  # the analyst's wording, kept across cases
+        self.not_allowed: tuple[str, ...] | None = None  # the analyst's marks, kept across cases
+        self.not_allowed_list = QListWidget()
+        self.not_allowed_list.setMaximumHeight(90)
+        self.not_allowed_list.setToolTip("Features never stated as reasons and never changed by a "
+                                         "flip (protected attributes and the like); flagged to you "
+                                         "when they move the score materially")
         self.stability_note = _label(style=NOTE)
 
         self.actionable = QListWidget()
@@ -231,7 +238,8 @@ class ReasonsPanel(QWidget):
                        self.flag_label):
             layout.addWidget(widget)
         layout.addLayout(reason_buttons)
-        for widget in (self.stability_note,
+        for widget in (self.stability_note, QLabel("Never stated as reasons (not allowed):"),
+                       self.not_allowed_list,
                        QLabel("<b>Nearest flip</b> — actionable features:"), self.actionable):
             layout.addWidget(widget)
         layout.addLayout(flip_controls)
@@ -243,6 +251,7 @@ class ReasonsPanel(QWidget):
         self.flip_button.clicked.connect(self.find_flips)
         self.stability_button.clicked.connect(self.check_stability)
         self.wording_button.clicked.connect(self.edit_wording)
+        self.not_allowed_list.itemChanged.connect(self._not_allowed_edited)
         self.flip_table.cellClicked.connect(self._flip_clicked)
         self.similar_table.cellClicked.connect(self._similar_clicked)
         self.clear("No case chosen.")
@@ -264,13 +273,47 @@ class ReasonsPanel(QWidget):
         previous = self._ticked() if self.case is not None else None
         if self.templates is not None:
             case.templates = self.templates
+        if self.not_allowed is not None:
+            case.not_allowed = self.not_allowed
         self.case, self.stability, self.flips, self.similar = case, None, None, []
+        self._fill_not_allowed()
         self._state_reasons()
         self._fill_actionable(actionable if actionable is not None else previous)
         self.flip_table.setRowCount(0)
         self.flip_message.setText("Tick the actionable features and press the button.")
         self.stability_note.setText("")
         self._request_similar()
+
+    def _fill_not_allowed(self) -> None:
+        case = self.case
+        self.not_allowed_list.blockSignals(True)
+        self.not_allowed_list.clear()
+        for f in case.adapter.input_columns:
+            item = QListWidgetItem(case.templates.wording(f).display_name)
+            item.setData(Qt.ItemDataRole.UserRole, f)
+            item.setFlags(item.flags() | Qt.ItemFlag.ItemIsUserCheckable)
+            item.setCheckState(Qt.CheckState.Checked if f in case.not_allowed
+                               else Qt.CheckState.Unchecked)
+            self.not_allowed_list.addItem(item)
+        self.not_allowed_list.blockSignals(False)
+
+    def set_not_allowed(self, features) -> None:
+        """Mark these features not allowed from now on (restating the current case's reasons)."""
+        self.not_allowed = tuple(dict.fromkeys(map(str, features)))
+        if self.case is not None:
+            ticked = [f for f in self._ticked() if f not in self.not_allowed]
+            self.case.not_allowed = self.not_allowed
+            self._fill_not_allowed()
+            self._state_reasons()
+            self._fill_actionable(ticked)
+            self.stability = None
+
+    def _not_allowed_edited(self, _item) -> None:
+        marked = tuple(self.not_allowed_list.item(i).data(Qt.ItemDataRole.UserRole)
+                       for i in range(self.not_allowed_list.count())
+                       if self.not_allowed_list.item(i).checkState() == Qt.CheckState.Checked)
+        self.set_not_allowed(marked)
+        self.not_allowed_changed.emit(marked)
 
     def set_templates(self, templates: ReasonTemplates) -> None:
         """Use this wording from now on (restating the current case's reasons)."""
