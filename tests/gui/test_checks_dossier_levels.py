@@ -76,6 +76,10 @@ def test_dossier_level_exports_html_with_user_text_escaped_and_saves(window, sma
     level.fields["name"].setText(f"Ana {EVIL}")
     level.fields["decision"].setText("approve")
     level.section_boxes["pairs"].setChecked(False)
+    window.ctx.focus.update(row=4)
+    level.add_case.click()
+    level.add_case.click()
+    assert level.cases_label.text() == "Chosen cases: row 4"
     out = small_files["dir"] / "d.html"
     level.export(out)
     window.ctx.runner.wait_idle()
@@ -87,6 +91,7 @@ def test_dossier_level_exports_html_with_user_text_escaped_and_saves(window, sma
     doc = json.loads(saved.read_text())
     assert doc["notes"].startswith("All good.") and doc["signoff"]["decision"] == "approve"
     assert "pairs" not in doc["sections"] and doc["inputs"]["data"]["sha256"]
+    assert doc["cases"] == [4] and 'id="cases"' in html and "Row 4" in html
     assert any(e["what"] == "dossier written" for e in doc["audit"])
     assert open_project(saved).signoff["name"] == f"Ana {EVIL}"
     level.notes.setPlainText("typed after saving")

@@ -81,6 +81,16 @@ class DossierLevel(Level):
         for key, label in SIGNOFF_FIELDS:
             self.fields[key] = QLineEdit()
             form.addRow(label, self.fields[key])
+        self.cases_label = QLabel("")
+        self.add_case = QPushButton("Add the focused row")
+        self.add_case.setToolTip("Put the row in focus among the dossier's chosen cases")
+        self.clear_cases = QPushButton("Clear")
+        self.add_case.clicked.connect(self.add_focused_case)
+        self.clear_cases.clicked.connect(self._clear_cases)
+        cases = QHBoxLayout()
+        cases.addWidget(self.cases_label, 1)
+        cases.addWidget(self.add_case)
+        cases.addWidget(self.clear_cases)
         self.export_html = QPushButton("Export HTML…")
         self.export_pdf = QPushButton("Export PDF…")
         self.save_button = QPushButton("Save project…")
@@ -101,6 +111,7 @@ class DossierLevel(Level):
         layout.addWidget(QLabel("Notes"))
         layout.addWidget(self.notes, 1)
         layout.addWidget(form_box)
+        layout.addLayout(cases)
         layout.addLayout(buttons)
         layout.addWidget(self.status)
         self.last_export: Path | None = None
@@ -125,11 +136,28 @@ class DossierLevel(Level):
         chosen = set(project.sections or self.section_boxes)
         for key, check in self.section_boxes.items():
             check.setChecked(key in chosen)
+        self._show_cases()
         ready = self.ctx.workspace.adapter("A") is not None and self.ctx.workspace.data is not None
         self.export_html.setEnabled(ready)
         self.export_pdf.setEnabled(ready)
         if not ready:
             self.status.setText("Open model A and a data file to build the dossier.")
+
+    def _show_cases(self) -> None:
+        rows = project_of(self.ctx).cases
+        self.cases_label.setText("Chosen cases: " + (", ".join(f"row {r}" for r in rows)
+                                                     if rows else "none"))
+
+    def add_focused_case(self) -> None:
+        row = self.state.row
+        cases = project_of(self.ctx).cases
+        if row is not None and row not in cases:
+            cases.append(int(row))
+        self._show_cases()
+
+    def _clear_cases(self) -> None:
+        project_of(self.ctx).cases.clear()
+        self._show_cases()
 
     def collect(self):
         """Copy what the analyst typed into the project and return it."""
