@@ -157,6 +157,8 @@ def test_path_form_and_all_rows_background(case_files):
     )
     assert every["background"] == {"rows": 150, "seed": 2}
     assert every["method"] == "sampling" and every["permutations"] == 8
+    assert all(a["standard_error"] >= 0 for a in every["attributions"])
+    assert all("standard_error" not in a for a in path["attributions"])
     assert every["task"] == "regression" and every["prediction"]["probability"] is None
     assert abs(every["additivity_residual"]) < 1e-9
 

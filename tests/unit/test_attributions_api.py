@@ -275,3 +275,26 @@ def test_hgb_on_pandas_categories_without_kernel_falls_back(no_kernel):
     res = explain(ModelAdapter(model), X.iloc[:2], background=X, background_size=20, form="path")
     assert res.method == "exact" and res.notes
     np.testing.assert_allclose(res.residual, 0.0, atol=1e-12)
+
+
+def test_sampling_with_one_column_or_one_pair():
+    X = pd.DataFrame({"c0": np.linspace(-1, 1, 40)})
+    y = X["c0"] ** 2
+    res = explain(
+        ModelAdapter(KNeighborsRegressor().fit(X, y)),
+        X.iloc[:3],
+        method="sampling",
+        background=X,
+        background_size=10,
+    )
+    np.testing.assert_allclose(res.values[:, 0], res.output - res.base_value, atol=1e-12)
+    X, y = numeric_data(p=3)
+    one_pair = explain(
+        ModelAdapter(KNeighborsRegressor().fit(X, y)),
+        X.iloc[:2],
+        method="sampling",
+        permutations=2,
+        background=X,
+        background_size=10,
+    )
+    assert np.isnan(one_pair.standard_error).all() and one_pair.max_abs_residual < 1e-12

@@ -131,6 +131,18 @@ def _plain(value):
     return value.item() if isinstance(value, np.generic) else value
 
 
+def _attribution(attributions: Attributions, x: pd.DataFrame, i: int, j: int) -> dict:
+    feature = attributions.features[j]
+    item = {
+        "feature": feature,
+        "value": _plain(x[feature].iloc[0]) if feature in x else None,
+        "contribution": float(attributions.values[i, j]),
+    }
+    if attributions.standard_error is not None:
+        item["standard_error"] = float(attributions.standard_error[i, j])
+    return item
+
+
 def case_payload(
     adapter, data: Dataset | pd.DataFrame, row: int, attributions: Attributions
 ) -> dict:
@@ -154,16 +166,7 @@ def case_payload(
             "response": float(adapter.response(x)[0]),
         },
         "base_value": float(attributions.base_value),
-        "attributions": [
-            {
-                "feature": attributions.features[j],
-                "value": _plain(x[attributions.features[j]].iloc[0])
-                if attributions.features[j] in x
-                else None,
-                "contribution": float(contributions[j]),
-            }
-            for j in order
-        ],
+        "attributions": [_attribution(attributions, x, i, j) for j in order],
         "additivity_residual": float(attributions.residual[i]),
         "method": attributions.method,
         "background": {"rows": int(attributions.background_rows), "seed": int(attributions.seed)},
@@ -207,10 +210,18 @@ def print_case(p: dict) -> None:
     print(f"method      {p['method']} ({p['form']})")
     print()
     rows = [
-        {"feature": a["feature"], "value": _shown(a["value"]), "contribution": a["contribution"]}
+        {
+            "feature": a["feature"],
+            "value": _shown(a["value"]),
+            "contribution": a["contribution"],
+            "standard error": a.get("standard_error", ""),
+        }
         for a in p["attributions"]
     ]
-    print_table(rows, ["feature", "value", "contribution"])
+    columns = ["feature", "value", "contribution"]
+    if any("standard_error" in a for a in p["attributions"]):
+        columns.append("standard error")
+    print_table(rows, columns)
     total = sum(a["contribution"] for a in p["attributions"])
     print()
     print(

@@ -130,22 +130,27 @@ def sampling_values(
     seed: int,
     progress=None,
     cancel=None,
-) -> np.ndarray:
-    """Shapley values (n, p) estimated from ``permutations`` orders (antithetic pairs)."""
-    p = rows.shape[1]
+) -> tuple[np.ndarray, np.ndarray]:
+    """Shapley values (n, p) estimated from ``permutations`` orders, and their standard errors.
+
+    The orders come in antithetic pairs (an order and its reverse); the pairs are independent
+    draws, so the standard error of each value is the spread of the pair means over
+    sqrt(number of pairs) (NaN with a single pair).
+    """
+    n, p = rows.shape
+    if p == 1:  # one column takes the whole difference
+        return (output - base)[:, None], np.zeros((n, 1))
     gen = jobs.rng(seed)
     half = [gen.permutation(p) for _ in range(permutations // 2)]
     orders = [o for perm in half for o in (perm, perm[::-1])]
     # interior prefixes of each order: sizes 1 .. p-1 (empty and full are known)
-    prefix_masks = np.zeros((len(orders), max(p - 1, 0), p), dtype=bool)
+    prefix_masks = np.zeros((len(orders), p - 1, p), dtype=bool)
     for t, order in enumerate(orders):
         for r in range(1, p):
             prefix_masks[t, r - 1, order[:r]] = True
-    flat_masks = prefix_masks.reshape(-1, p)
-    unique, inverse = np.unique(flat_masks, axis=0, return_inverse=True)
+    unique, inverse = np.unique(prefix_masks.reshape(-1, p), axis=0, return_inverse=True)
     v_unique = coalition_values(adapter, rows, background, unique, progress=progress, cancel=cancel)
-    v_prefix = v_unique[:, inverse.ravel()].reshape(len(rows), len(orders), max(p - 1, 0))
-    n = len(rows)
+    v_prefix = v_unique[:, inverse.ravel()].reshape(n, len(orders), p - 1)
     chain = np.concatenate(
         [
             np.full((n, len(orders), 1), base),
@@ -155,7 +160,11 @@ def sampling_values(
         axis=2,
     )
     gains = np.diff(chain, axis=2)  # (n, orders, p): gain of the column added at each position
-    phi = np.zeros((n, p))
+    by_order = np.empty_like(gains)
     for t, order in enumerate(orders):
-        phi[:, order] += gains[:, t, :]
-    return phi / len(orders)
+        by_order[:, t, order] = gains[:, t, :]
+    pairs = by_order.reshape(n, len(half), 2, p).mean(axis=2)  # (n, pairs, p)
+    values = pairs.mean(axis=1)
+    if len(half) < 2:
+        return values, np.full((n, p), np.nan)
+    return values, pairs.std(axis=1, ddof=1) / np.sqrt(len(half))

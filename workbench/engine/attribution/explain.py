@@ -330,7 +330,7 @@ class _Run:
             f"sampling: {permutations} permutations ({permutations // 2} antithetic pairs), "
             f"seed {self.seed}"
         )
-        values = agnostic.sampling_values(
+        values, standard_error = agnostic.sampling_values(
             adapter, rows, bg, base, self.output, permutations=permutations, seed=self.seed, **span
         )
         return finish(
@@ -338,6 +338,7 @@ class _Run:
             values,
             base,
             self.output,
+            standard_error=standard_error,
             **self._params("sampling", "interventional", len(bg), permutations),
         )
 

@@ -29,6 +29,8 @@ class Attributions:
     notes : why a method was chosen, what it fell back from, what the values do not mean.
     form : ``"interventional"`` or ``"path"`` (path-dependent; trees only).
     permutations : permutations drawn by the sampling method (0 otherwise).
+    standard_error : (n, p) standard errors of sampled values, from the spread over antithetic
+        pairs (None for the exact methods).
     """
 
     features: list[str]
@@ -43,6 +45,7 @@ class Attributions:
     notes: tuple[str, ...] = ()
     form: str = "interventional"
     permutations: int = 0
+    standard_error: np.ndarray | None = None
 
     @property
     def n_rows(self) -> int:
