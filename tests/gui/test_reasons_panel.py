@@ -31,7 +31,7 @@ def case():
                       background_size=50, labels=y, key=("test", row))
 
 
-def test_panel_shows_reasons_flips_similar_and_cautions(qtbot, case):
+def test_panel_shows_reasons_flips_similar_and_cautions(qtbot, case, tmp_path):
     panel = ReasonsPanel()
     qtbot.addWidget(panel)
     panel.set_case(case, actionable=["debt_ratio", "late"])
@@ -61,6 +61,12 @@ def test_panel_shows_reasons_flips_similar_and_cautions(qtbot, case):
     assert panel.stability is not None
     marks = {panel.reason_table.item(i, 2).text() for i in range(panel.reason_table.rowCount())}
     assert marks <= {"yes", "not stable"}
+
+    written = panel.write_sheet(tmp_path / "sheet.html")
+    html = (tmp_path / "sheet.html").read_text(encoding="utf-8")
+    assert written and "&lt;b&gt;Debt&lt;/b&gt; ratio" in html and "<b>Debt</b>" not in html
+    assert "Option 1" in html and "stable (rank changed)" in html
+    assert "Case sheet written" in panel.sheet_status.text()
 
 
 def test_flip_without_actionable_features_says_so(qtbot, case):
@@ -99,7 +105,7 @@ def test_wording_dialog_edits_and_refuses_unknown_placeholders(qtbot, case):
     assert "unknown placeholder" in dialog.problem.text()
 
 
-def test_case_level_loads_a_flip_as_trial_values(demo_window):
+def test_case_level_loads_a_flip_as_trial_values(demo_window, tmp_path):
     """In the window: the Case level embeds the panel; a flip option becomes trial values and
     the re-scored case lies on the other side of the cutoff."""
     win = demo_window
@@ -121,6 +127,11 @@ def test_case_level_loads_a_flip_as_trial_values(demo_window):
     panel.flip_table.cellClicked.emit(0, 1)
     assert set(case.trial) == set(option.features)
     assert case.trial_score < cutoff <= case.data_score
+    pypdf = pytest.importorskip("pypdf")
+    path = panel.write_sheet(tmp_path / "sheet.pdf")
+    text = " ".join(" ".join(page.extract_text() for page in pypdf.PdfReader(path).pages).split())
+    assert "lending_champion.skops" in text, text[-900:]
+    assert ws.slot("A").sha256 in text, text[-900:]  # monospace: no "ff" ligature in the hash
 
 
 def test_marking_a_feature_not_allowed_restates_the_reasons(qtbot, case):

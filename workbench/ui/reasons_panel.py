@@ -19,6 +19,7 @@ from PySide6.QtWidgets import (
     QAbstractItemView,
     QDialog,
     QDialogButtonBox,
+    QFileDialog,
     QFormLayout,
     QHBoxLayout,
     QHeaderView,
@@ -65,6 +66,12 @@ class CaseInputs:
     not_allowed: tuple[str, ...] = ()
     labels: object = None
     key: tuple = ()
+    model_name: str = ""
+    model_sha256: str = ""
+    data_name: str = ""
+    data_sha256: str = ""
+    id_label: str | None = None
+    id_value: object = None
 
 
 def _table(headers: list[str], stretch: int | None = None) -> QTableWidget:
@@ -197,6 +204,9 @@ class ReasonsPanel(QWidget):
         self.stability_button = QPushButton("Check stability")
         self.stability_button.setToolTip("Re-explain the case with other background samples and mark "
                                          "reasons whose rank changes")
+        self.sheet_button = QPushButton("Case sheet…")
+        self.sheet_button.setToolTip("Write this case's explanation as HTML or PDF")
+        self.sheet_status = _label(style=NOTE)
         self.wording_button = QPushButton("Wording…")
         self.wording_button.setToolTip("Display names, units and sentences of the reason statements")
         self.templates: ReasonTemplates | None = None  # the analyst's wording, kept across cases
@@ -234,6 +244,7 @@ class ReasonsPanel(QWidget):
         reason_buttons = QHBoxLayout()
         reason_buttons.addWidget(self.stability_button, 1)
         reason_buttons.addWidget(self.wording_button)
+        reason_buttons.addWidget(self.sheet_button)
         for widget in (QLabel("<b>Reason statements</b>"), self.message, self.reason_table,
                        self.flag_label):
             layout.addWidget(widget)
@@ -245,12 +256,13 @@ class ReasonsPanel(QWidget):
         layout.addLayout(flip_controls)
         for widget in (self.flip_message, self.flip_table, self.flip_note,
                        QLabel("<b>Similar rows</b>"), self.similar_message, self.similar_table,
-                       self.similar_note, self.cautions):
+                       self.similar_note, self.sheet_status, self.cautions):
             layout.addWidget(widget)
 
         self.flip_button.clicked.connect(self.find_flips)
         self.stability_button.clicked.connect(self.check_stability)
         self.wording_button.clicked.connect(self.edit_wording)
+        self.sheet_button.clicked.connect(self._ask_sheet_path)
         self.not_allowed_list.itemChanged.connect(self._not_allowed_edited)
         self.flip_table.cellClicked.connect(self._flip_clicked)
         self.similar_table.cellClicked.connect(self._similar_clicked)
@@ -480,6 +492,53 @@ class ReasonsPanel(QWidget):
             f"not stable (common practice, no source). Not stable: {unstable}.")
         self._show_reasons()
 
+    def _ask_sheet_path(self) -> None:
+        if self.case is None:
+            return
+        path, _ = QFileDialog.getSaveFileName(self, "Write the case sheet",
+                                              f"case-sheet-row-{self.case.row}.pdf",
+                                              "PDF (*.pdf);;HTML (*.html)")
+        if path:
+            self.write_sheet(path)
+
+    def write_sheet(self, path) -> str | None:
+        """Write the case sheet of what the panel shows (flip and stability only if computed)."""
+        case = self.case
+        if case is None or self.reasons is None:
+            return None
+        from workbench.report.case_sheet import case_sheet_context, write_case_sheet
+
+        label = None
+        if case.labels is not None and case.row is not None and not self._trial_values():
+            label = case.labels.iloc[case.row]
+        try:
+            context = case_sheet_context(
+                adapter=case.adapter, values_row=case.values_row, attributions=case.attributions,
+                cutoff=case.cutoff, adverse_if=case.adverse_if, reasons=self.reasons,
+                stability=self.stability, flips=self.flips,
+                similar=self.similar if self.similar else None,
+                similar_summary=self.similar_message.text() or None, templates=case.templates,
+                model_name=case.model_name, model_sha256=case.model_sha256,
+                data_name=case.data_name, data_sha256=case.data_sha256,
+                data_rows=len(case.data), row=case.row if case.row is not None else 0,
+                id_label=case.id_label, id_value=case.id_value, label=label,
+                background_source="the reference data" if case.background is not None else "")
+            written = str(write_case_sheet(path, context))
+        except (InputError, OSError) as exc:
+            self.sheet_status.setText(f"The case sheet was not written: {exc}")
+            return None
+        self.sheet_status.setText(f"Case sheet written: {written}")
+        return written
+
+    def _trial_values(self) -> bool:
+        """True when the values shown differ from the row in the data (trial values)."""
+        case = self.case
+        if case.row is None:
+            return True
+        original = case.data.iloc[[case.row]][list(case.values_row.columns)].reset_index(drop=True)
+        shown = case.values_row.reset_index(drop=True)
+        return not original.astype(object).equals(shown.astype(object))
+
     def _request_similar(self) -> None:
         case = self.case
         self.similar_table.setRowCount(0)
@@ -540,7 +599,7 @@ def show_for_case_level(panel: ReasonsPanel, level, attributions) -> None:
     if adapter is None or ws.frame is None or state.row is None:
         panel.clear("No case chosen.")
         return
-    settings = ws.settings
+    settings, slot = ws.settings, ws.slot(state.model)
     values = level.trial_frame()[list(adapter.input_columns)]
     digest = getattr(level, "_digest", "")
     panel.set_case(CaseInputs(
@@ -548,7 +607,11 @@ def show_for_case_level(panel: ReasonsPanel, level, attributions) -> None:
         cutoff=float(settings.cutoff), row=int(state.row), background=ws.background_frame(),
         background_size=int(settings.background_size), seed=int(settings.seed),
         labels=ws.labels(state.model),
-        key=(ws.generation, state.model, int(state.row), digest)))
+        key=(ws.generation, state.model, int(state.row), digest),
+        model_name=slot.name, model_sha256=slot.sha256,
+        data_name=ws.data.path.name if ws.data.path else "", data_sha256=ws.data.sha256,
+        id_label=ws.data.id_column,
+        id_value=ws.frame[ws.data.id_column].iloc[state.row] if ws.data.id_column else None))
 
 
 def load_trial_values(table: QTableWidget, values: dict, *, value_column: int = 2) -> None:
