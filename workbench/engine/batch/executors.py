@@ -86,7 +86,7 @@ class DaskCluster:
                 self._client = distributed.Client(self._cluster)
                 self.name = f"{self._workers} local worker process(es) on 127.0.0.1"
             else:
-                self._client = distributed.Client(self._scheduler, timeout="20s")
+                self._client = distributed.Client(self._scheduler, timeout="60s")
                 self.name = f"the cluster at {self._scheduler}"
         except (OSError, TimeoutError) as exc:
             self.__exit__(None, None, None)
