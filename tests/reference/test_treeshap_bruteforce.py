@@ -275,20 +275,22 @@ def test_path_dependent_equals_brute_force(name):
 
 @pytest.mark.parametrize("name", list(MODELS))
 def test_interventional_equals_brute_force(name):
-    """Interventional SHAP values equal the Shapley values of v(S) = mean over a 20-row
+    """Interventional SHAP values equal the Shapley values of v(S) = mean over a 70-row
     background of f(x_S, z_rest), with f the estimator's own raw prediction (Lundberg et al.
     2020, Methods; Shapley 1953); local accuracy against the estimator's raw output."""
     model, X = MODELS[name]
     ens = treeshap.from_estimator(model)
-    rows, background = _rows(X, name), X[:20]
-    res = treeshap.shap_values(ens, rows, method="interventional", background=background)
+    rows, background = _rows(X, name), X[:70]  # more than one 64-row word of background
     game = _interventional_game(model, background)
     raw = _raw_predict(model, rows)
-    for r, x in enumerate(rows):
-        phi, v_empty, _ = _shapley(game, x, M)
-        np.testing.assert_allclose(res.values[r], phi, rtol=1e-9, atol=1e-10)
-        np.testing.assert_allclose(res.base_value, v_empty, rtol=1e-9, atol=1e-10)
-    np.testing.assert_allclose(res.values.sum(axis=1) + res.base_value, raw, atol=1e-10)
+    expected = [_shapley(game, x, M)[:2] for x in rows]
+    for algorithm in ("auto", "classic"):  # path masks, then the per-pair tree walk
+        res = treeshap.shap_values(ens, rows, method="interventional", background=background,
+                                   algorithm=algorithm)
+        for r, (phi, v_empty) in enumerate(expected):
+            np.testing.assert_allclose(res.values[r], phi, rtol=1e-9, atol=1e-10)
+            np.testing.assert_allclose(res.base_value, v_empty, rtol=1e-9, atol=1e-10)
+        np.testing.assert_allclose(res.values.sum(axis=1) + res.base_value, raw, atol=1e-10)
 
 
 @pytest.mark.parametrize("name", ["dt_reg", "gb_multi", "hgb_cat_multi"])

@@ -136,12 +136,15 @@ def test_interventional_equals_shap(name, depth, missing):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         expected = _as3d(explainer.shap_values(rows, check_additivity=False))
-    res = treeshap.shap_values(ens, rows, method="interventional", background=background)
     raw = treeshap.raw_output(ens, rows)
     tol = 1e-6 * _scale(raw)
-    np.testing.assert_allclose(res.values, expected, rtol=0, atol=tol)
-    np.testing.assert_allclose(res.values.sum(axis=1) + res.base_value, raw, rtol=0, atol=tol)
-    assert res.background_rows == 25
+    for algorithm in ("auto", "classic"):  # path masks, then the per-pair tree walk
+        res = treeshap.shap_values(ens, rows, method="interventional", background=background,
+                                   algorithm=algorithm)
+        np.testing.assert_allclose(res.values, expected, rtol=0, atol=tol)
+        np.testing.assert_allclose(res.values.sum(axis=1) + res.base_value, raw, rtol=0,
+                                   atol=tol)
+        assert res.background_rows == 25
 
 
 @pytest.mark.parametrize(("name", "depth", "missing"),

@@ -91,9 +91,10 @@ def _tree(root, x, z, route, values, target, n_out, state, w_pos, w_neg, stack, 
 
 
 @numba.njit(cache=True, nogil=True, parallel=True)
-def interventional_shap(X, Z, route, values, tree_start, tree_target, max_depth, w_pos, w_neg,
-                        out):
-    """out[i] += mean over background rows z of the interventional SHAP values of row i."""
+def interventional_shap(X, Z, route, values, tree_start, tree_target, tree_use, max_depth, w_pos,
+                        w_neg, scale, out):
+    """out[i] += scale * mean over background rows z of the interventional SHAP values of row i,
+    for the trees with tree_use[t] == 1."""
     n = X.shape[0]
     n_out = out.shape[2]
     n_feat = out.shape[1]
@@ -108,11 +109,13 @@ def interventional_shap(X, Z, route, values, tree_start, tree_target, max_depth,
         for j in range(Z.shape[0]):
             z = Z[j]
             for t in range(n_trees):
+                if tree_use[t] == 0:
+                    continue
                 _tree(tree_start[t], x, z, route, values, tree_target[t], n_out, state,
                       w_pos, w_neg, stack, assigned, acc)
         for f in range(n_feat):
             for k in range(n_out):
-                out[i, f, k] += acc[f, k] * inv
+                out[i, f, k] += acc[f, k] * inv * scale
 
 
 def share_tables(max_unique: int) -> tuple[np.ndarray, np.ndarray]:

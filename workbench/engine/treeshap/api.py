@@ -12,6 +12,7 @@ from workbench.engine import jobs
 from workbench.engine.treeshap import (
     _kernel_interactions,
     _kernel_interventional,
+    _kernel_interventional_masks,
     _kernel_path,
     _prepare,
     _route,
@@ -133,12 +134,47 @@ def shap_values(ens: TreeEnsemble, X, *, method: str = "path", background=None,
         if Z.shape[0] == 0:
             raise ValueError("the background has no rows")
         w_pos, w_neg = _kernel_interventional.share_tables(ens.max_depth)
-        for sl in jobs.chunk_slices(n, max(1, CHUNK_ROWS * 10 // max(Z.shape[0], 10))):
-            jobs.step(progress, cancel, sl.start / max(n, 1), "interventional SHAP values")
-            _kernel_interventional.interventional_shap(
-                X[sl], Z, route, ens.values, ens.tree_start, ens.tree_target, ens.max_depth,
-                w_pos, w_neg, out[sl])
-        names = ["interventional"] * ens.n_trees
+        p = ens.paths
+        use_masks = (p.tree_unique <= _kernel_interventional_masks.MAX_BITS).astype(np.int64)
+        if algorithm == "classic":  # the per-pair tree walk everywhere
+            use_masks[:] = 0
+        use_walk = (1 - use_masks).astype(np.int64)
+        max_nodes = int(np.diff(ens.tree_start).max())
+        max_unique = int(p.tree_unique.max(initial=0))
+        n_leaves = p.leaf_nodes.size
+        leaf_of_node = np.full(ens.left.size, -1, np.int64)
+        leaf_of_node[p.leaf_nodes] = np.arange(n_leaves)
+        word = _kernel_interventional_masks.BACKGROUND_WORD
+        bg_chunks = list(jobs.chunk_slices(Z.shape[0], word))
+        masks = np.zeros((n_leaves, word), np.int64)
+        counts = np.zeros((n_leaves, word), np.int64)
+        follows = np.zeros(ens.left.size, np.int64)
+        row_chunk = max(1, CHUNK_ROWS * 100 // Z.shape[0])
+        row_chunks = list(jobs.chunk_slices(n, row_chunk))
+        steps = len(bg_chunks) * len(row_chunks)
+        done = 0
+        for zs in bg_chunks:
+            Zc = np.ascontiguousarray(Z[zs])
+            if use_masks.any():
+                _kernel_interventional_masks.background_masks(
+                    Zc, route, p.prev_same, ens.tree_start, use_masks, p.leaf_start,
+                    p.leaf_edge_start, p.leaf_edges, max_nodes, masks, counts, follows)
+            for sl in row_chunks:
+                jobs.step(progress, cancel, done / steps, "interventional SHAP values")
+                done += 1
+                if use_masks.any():
+                    _kernel_interventional_masks.interventional_masks(
+                        X[sl], route, ens.parent, p.prev_same, ens.values, ens.tree_start,
+                        ens.tree_target, use_masks, p.leaf_start, leaf_of_node,
+                        p.leaf_edge_start, p.leaf_edges, max_nodes, ens.max_depth, max_unique,
+                        masks, counts, follows, Zc.shape[0], w_pos, w_neg, 1.0 / Z.shape[0],
+                        out[sl])
+                if use_walk.any():
+                    _kernel_interventional.interventional_shap(
+                        X[sl], Zc, route, ens.values, ens.tree_start, ens.tree_target,
+                        use_walk, ens.max_depth, w_pos, w_neg, Zc.shape[0] / Z.shape[0],
+                        out[sl])
+        names = ["masks" if u else "walk" for u in use_masks]
         base = raw_output(ens, Z).mean(axis=0)
         bg_rows = int(Z.shape[0])
     else:
