@@ -164,3 +164,26 @@ def test_bad_input(uniform):
         h_statistics(adapter, uniform, features=["x1", "nope"])
     with pytest.raises(InputError, match="at least 2"):
         h_statistics(adapter, uniform, sample=1)
+
+
+def test_background_keeps_an_additive_function_at_zero(uniform):
+    """With a background smaller than the sample, both one-way functions of an additive f are
+    still exact up to a constant, so H^2 = 0 exactly (Friedman and Popescu 2008, eqs. 44 and 46):
+    a check that the two matrices of the background path are read the right way round."""
+    X = uniform.iloc[:200]
+    adapter = ModelAdapter(FormulaRegressor("add").fit(X))
+    res = h_statistics(adapter, X, sample=200, screen=None, background=30)
+    assert res.background == 30
+    np.testing.assert_allclose(res.h2_overall, 0.0, atol=1e-12)
+    assert res.h2_pairs[0, 1] == pytest.approx(0.0, abs=1e-12)
+
+
+def test_background_sample_estimates_the_same_h(uniform):
+    """A background of 300 of 2000 sample rows: H^2_12 of f = x1 + x2 + x1 x2 is still 1/7
+    within sampling tolerance (Friedman and Popescu 2008, eq. 44, worked by hand)."""
+    adapter = ModelAdapter(FormulaRegressor("mix").fit(uniform))
+    res = h_statistics(adapter, uniform, sample=2000, screen=None, background=300)
+    assert res.background == 300
+    assert res.h2_pairs[0, 1] == pytest.approx(1 / 7, abs=0.03)
+    assert res.h2_overall[0] == pytest.approx(1 / 7, abs=0.03)
+    assert res.h2_overall[2] == pytest.approx(0.0, abs=1e-12)

@@ -61,6 +61,7 @@ class Interactions:
     seed: int
     scale: str
     units: str
+    background: int | None = None  # rows averaged over; None = the sample itself
 
     @property
     def h_overall(self) -> np.ndarray:
@@ -102,6 +103,7 @@ def _replaced_scores(
     score,
     s: pd.DataFrame,
     columns: list[str],
+    background: np.ndarray,
     *,
     progress,
     cancel,
@@ -109,17 +111,17 @@ def _replaced_scores(
     width: float,
     label: str,
 ) -> np.ndarray:
-    """M (m, m): M[i, l] = f(row l of ``s`` with ``columns`` taken from row i)."""
-    m = len(s)
-    out = np.empty((m, m))
-    per_chunk = max(1, CHUNK_ROWS // m)
+    """M (m, b): M[i, l] = f(row ``background[l]`` of ``s`` with ``columns`` from row i)."""
+    m, b = len(s), background.size
+    out = np.empty((m, b))
+    per_chunk = max(1, CHUNK_ROWS // b)
     for i0 in range(0, m, per_chunk):
         i1 = min(i0 + per_chunk, m)
         step(progress, cancel, start + width * i0 / m, label)
-        own = np.repeat(np.arange(i0, i1), m)
-        others = np.tile(np.arange(m), i1 - i0)
+        own = np.repeat(np.arange(i0, i1), b)
+        others = np.tile(background, i1 - i0)
         frame = stacked_frame(s, others, column_index={c: own for c in columns})
-        out[i0:i1] = np.asarray(score(frame), dtype=float).reshape(i1 - i0, m)
+        out[i0:i1] = np.asarray(score(frame), dtype=float).reshape(i1 - i0, b)
     return out
 
 
@@ -132,13 +134,18 @@ def h_statistics(
     features: Sequence[str] | None = None,
     seed: int = 0,
     scale: str = "output",
+    background: int | None = None,
     progress=None,
     cancel=None,
 ) -> Interactions:
     """Overall H for every feature and pairwise H among the ``screen`` strongest.
 
-    ``sample`` rows are drawn with ``seed`` (all rows when there are fewer); the cost is about
-    (p + screen (screen - 1) / 2) * sample^2 model evaluations. ``screen=None`` computes every pair.
+    ``sample`` rows are drawn with ``seed`` (all rows when there are fewer); each partial
+    dependence function is evaluated at the sample points and averaged over the sample itself
+    (the estimator of Friedman and Popescu), costing (p + screen (screen - 1) / 2) * sample^2
+    model evaluations. ``background=b`` averages over b of the sample rows instead (a Monte Carlo
+    estimate of the same functions), costing (2 p + screen (screen - 1) / 2) * sample * b; it
+    pays when b < sample / 2. ``screen=None`` computes every pair.
     """
     score = scorer(adapter, scale)
     x = model_frame(adapter, frame)
@@ -153,6 +160,10 @@ def h_statistics(
     pos = np.arange(n) if n <= sample else np.sort(rng(seed).choice(n, int(sample), replace=False))
     s = x.iloc[pos].reset_index(drop=True)
     m = len(s)
+    exact = background is None or int(background) >= m
+    if not exact and int(background) < 2:
+        raise InputError(f"the background needs at least 2 rows, not {background}")
+    bg = np.arange(m) if exact else np.sort(rng(seed + 1).choice(m, int(background), replace=False))
     f_all = _centre(np.asarray(score(s), dtype=float))
     total_ss = float(np.sum(f_all**2))
     if total_ss <= 0:
@@ -167,19 +178,21 @@ def h_statistics(
     one_way = np.empty((p, m))
     h2 = np.empty(p)
     for j, f in enumerate(feats):
-        # M[i, l] = f(x_l with feature j from row i): column means F_\j, row means F_j.
-        mat = _replaced_scores(
-            score,
-            s,
-            [f],
+        where = dict(
             progress=progress,
             cancel=cancel,
             start=j / total,
             width=1 / total,
             label=f"H-statistic: {f}",
         )
+        # M[i, l] = f(x_l with feature j from row i): its row means are F_j(x_ij).
+        mat = _replaced_scores(score, s, [f], bg, **where)
         one_way[j] = _centre(mat.mean(axis=1))
-        rest = _centre(mat.mean(axis=0))
+        if exact:  # the same matrix read by columns: F_\j(x_l,rest) = mean_i f(x_ij, x_l,rest)
+            rest = _centre(mat.mean(axis=0))
+        else:  # F_\j(x_i,rest) = mean_l f(x_lj, x_i,rest): row i keeps all but j
+            others = [c for c in s.columns if c != f]
+            rest = _centre(_replaced_scores(score, s, others, bg, **where).mean(axis=1))
         h2[j] = _ratio(f_all - one_way[j] - rest, f_all, total_ss)
     pairs = np.full((p, p), np.nan)
     strength = np.where(np.isfinite(h2), h2, -np.inf)
@@ -191,6 +204,7 @@ def h_statistics(
                 score,
                 s,
                 [feats[j], feats[k]],
+                bg,
                 progress=progress,
                 cancel=cancel,
                 start=done / total,
@@ -211,4 +225,5 @@ def h_statistics(
         int(seed),
         scale,
         scale_units(adapter, scale),
+        None if exact else int(bg.size),
     )
