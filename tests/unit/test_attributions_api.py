@@ -298,3 +298,13 @@ def test_sampling_with_one_column_or_one_pair():
         background_size=10,
     )
     assert np.isnan(one_pair.standard_error).all() and one_pair.max_abs_residual < 1e-12
+
+
+def test_a_series_row_and_a_matrix_background_are_accepted():
+    X, y = numeric_data()
+    adapter = ModelAdapter(LogisticRegression().fit(X, y))
+    as_frames = explain(adapter, X.iloc[[4]], background=X, background_size="all")
+    as_series = explain(adapter, X.iloc[4], background=X.to_numpy(), background_size="all")
+    np.testing.assert_allclose(as_series.values, as_frames.values, atol=1e-12)
+    with pytest.raises(InputError, match="columns"):
+        explain(adapter, X.iloc[[4]], background=np.zeros((5, 2)))

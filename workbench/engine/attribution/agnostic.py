@@ -32,10 +32,26 @@ EXACT_MAX_COLUMNS = 16  # beyond this, exact enumeration is refused (65534 coali
 DEFAULT_PERMUTATIONS = 64
 
 
+def as_frame(adapter, data) -> pd.DataFrame:
+    """A DataFrame of ``data``: a one-row Series (one case) or a matrix in input-column order."""
+    if isinstance(data, pd.DataFrame):
+        return data
+    if isinstance(data, pd.Series):
+        return data.to_frame().T.infer_objects()
+    arr = np.asarray(data)
+    if arr.ndim == 1:
+        arr = arr[None, :]
+    if arr.ndim != 2 or arr.shape[1] != len(adapter.input_columns):
+        raise InputError(
+            f"expected rows of {len(adapter.input_columns)} columns, "
+            f"got an array of shape {arr.shape}"
+        )
+    return pd.DataFrame(arr, columns=adapter.input_columns)
+
+
 def raw_columns(adapter, frame: pd.DataFrame) -> pd.DataFrame:
     """The model's raw input columns of ``frame``, in order, with a fresh 0..n-1 index."""
-    if not isinstance(frame, pd.DataFrame):
-        frame = pd.DataFrame(np.asarray(frame))
+    frame = as_frame(adapter, frame)
     if adapter.named_columns:
         missing = [c for c in adapter.input_columns if c not in frame.columns]
         if missing:

@@ -43,7 +43,7 @@ def explain(
 
     Parameters
     ----------
-    frame : rows to explain, raw columns (extra columns are ignored).
+    frame : rows to explain, raw columns (extra columns are ignored); a Series is one row.
     method : ``auto`` (tree SHAP for tree ensembles, the closed form for linear models, exact
         enumeration up to 12 columns and permutation sampling beyond for anything else),
         ``tree`` (our kernel, or shap where the kernel is missing), ``tree-reference``
@@ -59,10 +59,11 @@ def explain(
         )
     if form not in FORMS:
         raise InputError(f"unknown attribution form {form!r}; choose interventional or path")
+    frame = agnostic.as_frame(adapter, frame)
     rows = agnostic.raw_columns(adapter, frame)
     if len(rows) == 0:
         raise InputError("there are no rows to explain")
-    reference = frame if background is None else background
+    reference = frame if background is None else agnostic.as_frame(adapter, background)
     run = _Run(
         adapter, rows, reference, form, background_size, seed, permutations, progress, cancel
     )
