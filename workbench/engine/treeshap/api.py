@@ -9,6 +9,7 @@ import numba
 import numpy as np
 
 from workbench.engine import jobs
+from workbench.engine.errors import InputError
 from workbench.engine.treeshap import (
     _kernel_interactions,
     _kernel_interventional,
@@ -132,7 +133,7 @@ def shap_values(ens: TreeEnsemble, X, *, method: str = "path", background=None,
             raise ValueError("method='interventional' needs a background matrix")
         Z = ens.prepare_input(background)
         if Z.shape[0] == 0:
-            raise ValueError("the background has no rows")
+            raise InputError("the background sample for interventional SHAP values has no rows")
         w_pos, w_neg = _kernel_interventional.share_tables(ens.max_depth)
         p = ens.paths
         use_masks = (p.tree_unique <= _kernel_interventional_masks.MAX_BITS).astype(np.int64)

@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from workbench.engine.errors import InputError
 from workbench.engine.treeshap import _prepare
 
 
@@ -67,7 +68,8 @@ class TreeEnsemble:
         """X as a C-ordered float64 matrix, rounded to float32 where the model compares in it."""
         X = np.asarray(X, dtype=np.float64)
         if X.ndim != 2 or X.shape[1] != self.n_features:
-            raise ValueError(f"X must have shape (n, {self.n_features}); got {X.shape}")
+            raise InputError(f"the {self.model_name} model takes {self.n_features} columns; "
+                             f"the matrix given has shape {X.shape}")
         if self.input_float32:
             # scikit-learn's trees compare float32 copies of X with their thresholds.
             X = X.astype(np.float32).astype(np.float64)
