@@ -1,6 +1,7 @@
 """The case sheet: HTML and PDF hold the reason texts, the cautions and the sources; user text
 is escaped."""
 
+import os
 import unicodedata
 
 import numpy as np
@@ -16,6 +17,7 @@ from workbench.engine.similar import similar_rows, similar_summary
 from workbench.report.case_sheet import case_sheet_context, case_sheet_html, write_case_sheet
 from workbench.report.render import CAUTIONS
 
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 EVIL = "<script>alert('x')</script> Debt ratio"
 
 
@@ -70,7 +72,9 @@ def test_html_holds_reasons_cautions_sources_and_escapes_user_text(sheet, tmp_pa
     assert "Option 1" in html and "Wachter" in html and "Gower" in html
 
 
-def test_pdf_holds_the_reason_texts(sheet, tmp_path):
+def test_pdf_holds_the_reason_texts(sheet, tmp_path, qapp):
+    """``qapp``: a full QApplication, so that the PDF writer does not start a QGuiApplication
+    that would stop later window tests in the same process from making widgets."""
     pypdf = pytest.importorskip("pypdf")
     context, reasons, _flips = sheet
     path = write_case_sheet(tmp_path / "case.pdf", context)
