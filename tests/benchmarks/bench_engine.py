@@ -99,8 +99,20 @@ def main(n: int = 2000, p: int = 8) -> None:
 
     model20, X20, _ = problem(n, 20, seed=1)
     adapter20 = ModelAdapter(model20)
+    x20 = model_frame(adapter20, X20)
     t = timed(lambda: h_statistics(adapter20, X20, sample=300, screen=8), runs=3)
-    show("workbench h_statistics, 20 features, sample 300, screen 8 (3 runs)", t)
+    show("h_statistics, 20 features, sample 300, screen 8 (3 runs)", t)
+    evaluations = (20 + 28) * 300 * 300  # model rows the default H-statistics score
+    batch = stacked_frame(x20, np.tile(np.arange(n), 200_000 // n))
+    per_row = timed(lambda: adapter20.score(batch), runs=3)[1] / len(batch)
+    print(
+        f"  floor: {evaluations} rows at {per_row * 1e6:.2f} us a row (one batch of "
+        f"{len(batch)}) = {evaluations * per_row:.2f} s",
+        flush=True,
+    )
+    print(f"  ratio to the floor: {t[1] / (evaluations * per_row):.2f}")
+    t = timed(lambda: h_statistics(adapter20, X20, sample=300, screen=8, background=100), runs=3)
+    show("h_statistics, same, background 100 (3 runs)", t)
 
 
 if __name__ == "__main__":

@@ -172,7 +172,14 @@ def test_pairs_json(interacting):
 
 def test_pairs_readable_table(interacting):
     code, out, err = run_cli(
-        "pairs", interacting["model"], interacting["csv"], "--sample", "60", "--trust"
+        "pairs",
+        interacting["model"],
+        interacting["csv"],
+        "--sample",
+        "60",
+        "--background",
+        "20",
+        "--trust",
     )
     assert code == 0, err
     assert "x1 x x2" in out and "overall H" in out

@@ -32,6 +32,12 @@ def register(sub) -> None:
         default=8,
         help="pairs only among this many columns with the strongest overall H (default 8)",
     )
+    p.add_argument(
+        "--background",
+        type=int,
+        help="average each partial dependence over this many sample rows instead of all "
+        "(faster, a Monte Carlo estimate; default: all)",
+    )
     p.add_argument("--seed", type=int, default=0, help="seed for the row sample (default 0)")
     p.add_argument("--scale", choices=SCALES, default="output", help="model scale (default output)")
     p.add_argument(
@@ -50,7 +56,13 @@ def run(args) -> int:
     data, _ = open_data(args, adapter)
     x = model_frame(adapter, data.frame)
     res = h_statistics(
-        adapter, x, sample=args.sample, screen=args.screen, seed=args.seed, scale=args.scale
+        adapter,
+        x,
+        sample=args.sample,
+        screen=args.screen,
+        seed=args.seed,
+        scale=args.scale,
+        background=args.background,
     )
     assoc, clusters = association_blocks(adapter, x, args.block_threshold)
     payload = {
@@ -63,6 +75,7 @@ def run(args) -> int:
         "sample": res.sample,
         "screen": res.screen,
         "seed": res.seed,
+        "background": res.background,
         "scale": res.scale,
         "units": res.units,
         "screened": res.screened,
