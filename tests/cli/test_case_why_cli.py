@@ -104,3 +104,24 @@ def test_row_outside_the_data_and_flip_not_found(run_cli, cli_files, adverse_row
     assert code == 0, err
     payload = json.loads(out)
     assert payload["flip"] == [] and "No change of at most 3" in payload["flip_message"]
+
+
+def test_wording_file_names_the_features_and_the_sheet_escapes_them(run_cli, cli_files, adverse_row,
+                                                                     tmp_path):
+    row, _low, _p = adverse_row
+    wording = tmp_path / "wording.json"
+    wording.write_text(json.dumps({"outcome": "the estimated risk", "features": {
+        "debt_ratio": {"display_name": "<script>x</script>Debt ratio", "number_format": "{:.0%}"},
+        "income": {"display_name": "Income", "unit": "per year", "number_format": "{:,.0f}"}}}))
+    sheet = tmp_path / "case.html"
+    code, out, err = run_cli("case", cli_files["model"], cli_files["csv"], "--row", row,
+                             "--reasons", "--wording", wording, "--sheet", sheet, "--json")
+    assert code == 0, err
+    texts = [r["text"] for r in json.loads(out)["reasons"]]
+    assert all("the estimated risk" in t for t in texts)
+    html = sheet.read_text(encoding="utf-8")
+    assert "<script>" not in html and "&lt;script&gt;x&lt;/script&gt;Debt ratio" in html
+    wording.write_text("{not json")
+    code, _out, err = run_cli("case", cli_files["model"], cli_files["csv"], "--row", row,
+                              "--reasons", "--wording", wording)
+    assert code == 2 and "not a readable JSON wording file" in err
