@@ -183,3 +183,39 @@ def test_pairs_readable_table(interacting):
     )
     assert code == 0, err
     assert "x1 x x2" in out and "overall H" in out
+
+
+def test_rank_and_effects_on_a_model_without_column_names(tmp_path):
+    """A model fitted on a bare array takes the data's columns in order, target and ID aside."""
+    from sklearn.linear_model import LogisticRegression
+
+    rng = np.random.default_rng(3)
+    df = pd.DataFrame({"id": range(200), "a": rng.normal(size=200), "b": rng.normal(size=200)})
+    df["y"] = (df["a"] + 0.1 * rng.normal(size=200) > 0).astype(int)
+    model = LogisticRegression().fit(df[["a", "b"]].to_numpy(), df["y"])
+    sio.dump(model, tmp_path / "bare.skops")
+    df[["a", "y", "b", "id"]].to_csv(tmp_path / "bare.csv", index=False)
+    out = _json(
+        "rank",
+        tmp_path / "bare.skops",
+        tmp_path / "bare.csv",
+        "--target",
+        "y",
+        "--id-column",
+        "id",
+        "--repeats",
+        "2",
+    )
+    assert [f["feature"] for f in out["features"]][0] == "x0"
+    out = _json(
+        "effects",
+        tmp_path / "bare.skops",
+        tmp_path / "bare.csv",
+        "--feature",
+        "x1",
+        "--target",
+        "y",
+        "--id-column",
+        "id",
+    )
+    assert out["feature"] == "x1" and len(out["pd"]) == len(out["grid"])

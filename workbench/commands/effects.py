@@ -12,10 +12,10 @@ from workbench.commands.common import (
     print_json,
     print_table,
 )
+from workbench.commands.rank import model_inputs
 from workbench.engine.effects import (
     SCALES,
     accumulated_local_effects,
-    model_frame,
     partial_dependence,
 )
 
@@ -48,7 +48,7 @@ def register(sub) -> None:
 def run(args) -> int:
     loaded, adapter = open_model(args)
     data, _ = open_data(args, adapter)
-    x = model_frame(adapter, data.frame)
+    x = model_inputs(adapter, data)
     curve = partial_dependence(
         adapter,
         x,

@@ -12,8 +12,8 @@ from workbench.commands.common import (
     print_json,
     print_table,
 )
-from workbench.commands.rank import association_blocks
-from workbench.engine.effects import SCALES, model_frame
+from workbench.commands.rank import association_blocks, model_inputs
+from workbench.engine.effects import SCALES
 from workbench.engine.interactions import h_statistics
 
 
@@ -54,7 +54,7 @@ def register(sub) -> None:
 def run(args) -> int:
     loaded, adapter = open_model(args)
     data, _ = open_data(args, adapter)
-    x = model_frame(adapter, data.frame)
+    x = model_inputs(adapter, data)
     res = h_statistics(
         adapter,
         x,

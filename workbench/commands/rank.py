@@ -49,6 +49,14 @@ def register(sub) -> None:
     p.set_defaults(run=run)
 
 
+def model_inputs(adapter, data, frame=None):
+    """The model's input columns of the data (for unnamed models: all but target and ID)."""
+    frame = data.frame if frame is None else frame
+    if not adapter.named_columns:
+        frame = frame.drop(columns=[c for c in (data.target, data.id_column) if c is not None])
+    return model_frame(adapter, frame)
+
+
 def association_blocks(adapter, x, threshold: float = 0.5):
     """Associations of the model's input columns and their clustering into blocks."""
     assoc = associations(x, categorical=[c for c in adapter.categorical_columns if c in x.columns])
@@ -68,7 +76,7 @@ def run(args) -> int:
         if args.exposure not in frame.columns:
             raise InputError(f"{args.data}: no exposure column '{args.exposure}'")
         exposure = frame[args.exposure].to_numpy(dtype=float)
-    x = model_frame(adapter, frame)
+    x = model_inputs(adapter, data, frame)
     blocks = []
     if args.groups == "auto":
         blocks = association_blocks(adapter, x, args.group_threshold)[1].blocks
@@ -148,4 +156,4 @@ def run(args) -> int:
     return 0
 
 
-__all__ = ["association_blocks", "register", "run"]
+__all__ = ["association_blocks", "model_inputs", "register", "run"]
