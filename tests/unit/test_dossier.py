@@ -90,7 +90,8 @@ def test_every_section_is_present_with_a_table_of_contents(project):
     assert "screening indicator" in html
 
 
-def test_pdf_text_holds_the_section_titles(project, tmp_path):
+def test_pdf_text_holds_the_section_titles(project, tmp_path, qapp):
+    # qapp: a full QApplication, so that widget tests later in the same run can still start
     path = write_dossier(project, tmp_path / "d.pdf")
     text = _text_of_pdf(path)
     for _, title in SECTIONS:
