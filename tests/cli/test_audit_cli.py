@@ -63,6 +63,7 @@ def test_project_then_dossier_and_a_changed_input_is_refused(cli_files, tmp_path
     assert code == 0, err
     doc = json.loads(project.read_text())
     assert doc["checks"] and doc["audit"][0]["what"] == "audit checks"
+    assert len(doc["results"]["checks"]) == 64  # the results' cache key
     code, out, err = run_cli("dossier", project, "-o", tmp_path / "d.html")
     assert code == 0, err
     html = (tmp_path / "d.html").read_text()

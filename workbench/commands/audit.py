@@ -107,6 +107,7 @@ def run(args) -> int:
 
 
 def save_audit_project(args, loaded, data, reference, expectations, results) -> Path:
+    from workbench.engine.cache import cache_key
     from workbench.session.audit import record
     from workbench.session.project import Project, save_project
 
@@ -120,8 +121,10 @@ def save_audit_project(args, loaded, data, reference, expectations, results) -> 
                             group=args.group, id_column=data.id_column)
     project.expectations = dict(expectations)
     project.checks = [r.as_dict() for r in results]
-    record(project, "audit checks", {"expectations": expectations, "group": args.group,
-                                     "cutoff": args.cutoff, "adverse_if": args.adverse_if,
-                                     "sample": args.sample, "seed": args.seed,
-                                     "reference": reference is not None})
+    parameters = {"expectations": expectations, "group": args.group, "cutoff": args.cutoff,
+                  "adverse_if": args.adverse_if, "sample": args.sample, "seed": args.seed,
+                  "reference": None if reference is None else reference.sha256}
+    project.results["checks"] = cache_key(loaded.sha256, data.sha256, None, "run_checks",
+                                          parameters)
+    record(project, "audit checks", parameters)
     return save_project(project, args.project)

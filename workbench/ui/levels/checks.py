@@ -29,6 +29,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from workbench.engine.cache import cache_key
 from workbench.engine.checks import DIRECTIONS
 from workbench.session.audit import record
 from workbench.session.project import Project
@@ -278,6 +279,8 @@ class ChecksLevel(Level):
             project.expectations = dict(expectations)
             project.settings["group"] = group
             project.checks = [r.as_dict() for r in results]
+            project.results["checks"] = cache_key(ws.slot("A").sha256, ws.data.sha256, None,
+                                                  "run_checks", params)
             record(project, "audit checks", params)
             self.show_results(project.checks)
 
