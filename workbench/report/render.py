@@ -75,14 +75,18 @@ def write_html(html: str, path: str | Path) -> Path:
 
 
 def _ensure_gui_app():
-    """Qt's text engine needs a QGuiApplication; headless runs use the offscreen platform."""
-    from PySide6.QtGui import QGuiApplication
+    """Qt's text engine needs an application object; headless runs use the offscreen platform.
 
-    app = QGuiApplication.instance()
+    A full QApplication (not a bare QGuiApplication), so that widgets made later in the same
+    process still work.
+    """
+    from PySide6.QtWidgets import QApplication
+
+    app = QApplication.instance()
     if app is None:
         if not os.environ.get("DISPLAY") and not os.environ.get("WAYLAND_DISPLAY"):
             os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
-        app = QGuiApplication([])
+        app = QApplication([])
     return app
 
 
