@@ -124,7 +124,8 @@ def print_summary(summary) -> None:
           + (f" (see {summary.rejects})" if summary.rejects else ""))
     resumed = f", {summary.chunks_resumed} resumed from an earlier run" if summary.chunks_resumed else ""
     print(f"{summary.chunks} chunk(s) of up to {summary.settings.chunk_rows:,} rows{resumed}; "
-          f"ran {summary.executor} in {summary.seconds:.1f} s")
+          f"ran {summary.executor} in {summary.seconds:.1f} s "
+          f"({summary.seconds_explaining:.1f} s explaining)")
     print(f"method {summary.method} ({summary.form}) against {summary.background_rows} background "
           f"rows drawn uniformly from the whole input with seed {summary.seed}; "
           f"base value {summary.base_value:.6g}")

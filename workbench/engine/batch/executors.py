@@ -113,7 +113,7 @@ class DaskCluster:
 
     def submit(self, job: ChunkJob) -> None:
         job = ChunkJob(job.index, job.start, job.frame, job.method, one_thread=True)
-        data = self._client.scatter(job)
+        data = self._client.scatter(job, hash=False)  # hashing a chunk costs time and gains nothing
         self._futures.add(self._client.submit(explain_chunk, data, *self._shared, pure=False))
 
     def pending(self) -> int:

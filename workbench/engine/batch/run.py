@@ -97,6 +97,8 @@ class BatchSummary:
     started_over: str | None = None
     notes: tuple[str, ...] = ()
     background_positions: tuple[int, ...] = ()  # row positions of the background rows
+    seconds_explaining: float = 0.0  # from the first chunk sent to the last one written
+    processes_used: int = 0  # distinct processes that explained chunks in this call
 
     def as_dict(self) -> dict:
         return {"output": str(self.output), "rejects": None if self.rejects is None else str(self.rejects),
@@ -107,7 +109,9 @@ class BatchSummary:
                 "seed": self.seed, "executor": self.executor, "seconds": self.seconds,
                 "input_sha256": self.input_sha256, "model_sha256": self.model_sha256,
                 "settings": self.settings.as_dict(), "started_over": self.started_over,
-                "notes": list(self.notes), "background_positions": list(self.background_positions)}
+                "notes": list(self.notes), "background_positions": list(self.background_positions),
+                "seconds_explaining": self.seconds_explaining,
+                "processes_used": self.processes_used}
 
 
 def check_settings(adapter, settings: BatchSettings) -> BatchSettings:
@@ -190,6 +194,7 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
     total_read = 0
     written_now = 0
     chunk_notes: list[str] = []
+    processes: set[str] = set()
 
     first_sent = None
 
@@ -212,12 +217,14 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
                                                preserve_index=False), result.notes)
             chunk_notes.extend(n for n in result.notes if n not in chunk_notes)
             written_now += 1
+            processes.add(result.worker)
             if watch is not None:
                 watch(_status(reader, work, total_read, resumed_rows,
                               time.perf_counter() - (first_sent or started)))
             jobs.step(progress, cancel, _fraction(reader, work, total_read), "explaining rows")
             if stop_after_chunks is not None and written_now >= stop_after_chunks:
                 raise RuntimeError(f"stopped after {written_now} chunk(s) (test hook)")
+    explaining = time.perf_counter() - first_sent if first_sent is not None else 0.0
     work.set_total(total_read)
     rows_written = sum(c["rows"] for c in work.chunks.values())
     rows_rejected = sum(c["rejected"] for c in work.chunks.values())
@@ -237,7 +244,8 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
                         resumed, method, settings.form, len(background), base_value,
                         settings.seed, executor.name, time.perf_counter() - started, input_sha,
                         model_sha256, settings, work.started_over,
-                        tuple(dict.fromkeys([*notes, *chunk_notes])), background_positions)
+                        tuple(dict.fromkeys([*notes, *chunk_notes])), background_positions,
+                        explaining, len(processes))
 
 
 def _fraction(reader, work, rows_seen: int) -> float:

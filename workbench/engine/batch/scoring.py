@@ -9,6 +9,8 @@ the one method it chose, so a row's values do not depend on which chunk holds it
 
 from __future__ import annotations
 
+import os
+import socket
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -150,6 +152,7 @@ class ChunkResult:
     rows: pd.DataFrame
     rejects: pd.DataFrame
     notes: tuple[str, ...] = ()
+    worker: str = ""  # host:pid of the process that explained the chunk
 
 
 def explain_chunk(job: ChunkJob, adapter, background: pd.DataFrame,
@@ -181,7 +184,8 @@ def explain_chunk(job: ChunkJob, adapter, background: pd.DataFrame,
     if result is not None:
         notes = result.notes
     table = _row_table(adapter, settings, job, frame, rows, good, result)
-    return ChunkResult(job.index, job.start, table, _reject_table(settings, job, problems), notes)
+    return ChunkResult(job.index, job.start, table, _reject_table(settings, job, problems), notes,
+                       f"{socket.gethostname()}:{os.getpid()}")
 
 
 def _one_thread() -> None:

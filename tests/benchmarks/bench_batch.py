@@ -1,0 +1,117 @@
+"""Throughput and memory of ``workbench batch`` on the demo challenger (HistGradientBoosting,
+16 inputs) over a large invented lending book.
+
+Run: python tests/benchmarks/bench_batch.py [--rows N] [--background K] [--chunk-rows C]
+(default 1,000,000 rows; the file holds the lending book's 20 columns). It measures, each run in
+a fresh child process (a Dask LocalCluster on 127.0.0.1 started by the command):
+
+* rows per second while explaining (from the first chunk sent to the last part written, so the
+  fixed costs of starting workers, drawing the background and assembling are left out) with
+  one worker and with two (target: two workers >= 1.7x one worker);
+* the time for twice the rows with two workers (target: at most 2x the time, + 10 %);
+* the peak resident memory of the main process (ru_maxrss of the command's own process), for
+  N and 2N rows: bounded by the chunk size, so it should not grow with the rows;
+* the reference in the same run: ``explain`` on 2,000 rows in one process with one numba
+  thread, so the batch rate can be read as a ratio to the engine's plain call.
+
+The machine may be shared: the figures are only comparable within one run.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+MAKER = """
+import sys
+from demo_models.lending import generate_lending
+rows = int(sys.argv[1])
+_, current = generate_lending(7, n_reference=1_000, n_current=2 * rows)
+current.iloc[:rows].to_parquet(sys.argv[2], index=False, row_group_size=100_000)
+current.to_parquet(sys.argv[3], index=False, row_group_size=100_000)
+print(len(current.columns))
+"""
+
+CHILD = """
+import json, resource, sys
+from workbench.cli import main
+code = main(sys.argv[1:])
+peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+print(json.dumps({"code": code, "peak_mib": peak}), file=sys.stderr)
+"""
+
+REFERENCE = """
+import sys, time
+import numba
+import pandas as pd
+numba.set_num_threads(1)
+from demo_models.write import load_demo_model
+from workbench.engine.adapter import ModelAdapter
+from workbench.engine.attributions import explain, select_background
+adapter = ModelAdapter(load_demo_model(sys.argv[1]))
+frame = pd.read_parquet(sys.argv[2]).iloc[:2_000]
+background = select_background(frame, int(sys.argv[3]), seed=0)
+explain(adapter, frame.iloc[:20], background=background, background_size="all")  # compile
+t = time.perf_counter()
+explain(adapter, frame, background=background, background_size="all")
+print(len(frame) / (time.perf_counter() - t))
+"""
+
+
+def run_batch(model: Path, data: Path, out: Path, workers: int, args) -> dict:
+    cmd = [sys.executable, "-c", CHILD, "batch", str(model), str(data), "-o", str(out),
+           "--trust", "--json", "--workers", str(workers), "--background", str(args.background),
+           "--chunk-rows", str(args.chunk_rows), "--id-column", "application_id"]
+    t = time.perf_counter()
+    proc = subprocess.run(cmd, capture_output=True, text=True)
+    wall = time.perf_counter() - t
+    if proc.returncode != 0:
+        raise SystemExit(proc.stderr)
+    summary = json.loads(proc.stdout)
+    peak = json.loads(proc.stderr.strip().splitlines()[-1])["peak_mib"]
+    return {"rows": summary["rows_written"], "seconds": summary["seconds"], "wall": wall,
+            "explaining": summary["seconds_explaining"], "processes": summary["processes_used"],
+            "rate": summary["rows_written"] / summary["seconds_explaining"], "peak_mib": peak}
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser()
+    parser.add_argument("--rows", type=int, default=1_000_000)
+    parser.add_argument("--background", type=int, default=100)
+    parser.add_argument("--chunk-rows", type=int, default=20_000)
+    args = parser.parse_args()
+    from demo_models.write import ensure_demo
+
+    model = ensure_demo()["lending_challenger"]
+    with tempfile.TemporaryDirectory() as tmp:
+        tmp = Path(tmp)
+        small, large = tmp / "book_n.parquet", tmp / "book_2n.parquet"
+        cols = subprocess.check_output([sys.executable, "-c", MAKER, str(args.rows), str(small),
+                                        str(large)]).decode().strip()
+        print(f"{args.rows:,} and {2 * args.rows:,} rows x {cols} columns; background "
+              f"{args.background}; chunks of {args.chunk_rows:,} rows")
+        reference = float(subprocess.check_output(
+            [sys.executable, "-c", REFERENCE, str(model), str(small), str(args.background)]))
+        print(f"reference: explain() in one process, one thread: {reference:,.0f} rows/s")
+        one = run_batch(model, small, tmp / "o1.parquet", 1, args)
+        two = run_batch(model, small, tmp / "o2.parquet", 2, args)
+        double = run_batch(model, large, tmp / "o3.parquet", 2, args)
+        for name, r in (("1 worker,  N", one), ("2 workers, N", two), ("2 workers, 2N", double)):
+            print(f"{name:14s} {r['rows']:>9,} rows  explaining {r['explaining']:7.1f} s "
+                  f"(run {r['seconds']:6.1f} s, wall {r['wall']:6.1f} s, {r['processes']} "
+                  f"process(es))  {r['rate']:8,.0f} rows/s ({r['rate'] / reference:4.2f}x "
+                  f"reference)  main process peak {r['peak_mib']:5.0f} MiB")
+        print(f"two workers / one worker throughput: {two['rate'] / one['rate']:.2f}x (target >= 1.7)")
+        print(f"time for 2N / time for N (two workers, explaining): "
+              f"{double['explaining'] / two['explaining']:.2f} "
+              "(target <= 2.2)")
+        print(f"main process peak, 2N / N: {double['peak_mib'] / two['peak_mib']:.2f}")
+
+
+if __name__ == "__main__":
+    main()
