@@ -8,6 +8,12 @@ unless one of these options is given, so the plain case payload stays as it is.
 Cutoff: on the response scale (the probability of the class of interest, or the predicted
 value). For classifiers it defaults to 0.5, the window's default setting; for regressors and
 count models ``--cutoff`` is required whenever reasons, a flip or a sheet is asked for.
+
+Not errors (exit 0, with a message in the payload): a case on the favourable side asked for
+reasons (``reasons`` is empty and ``reasons_message`` says so; ``--on-request`` gives its
+strongest adverse factors), and a flip not found within the bounds (``flip`` is empty and
+``flip_message`` says so). Errors (exit 2, one line): no ``--actionable`` features, unknown
+feature names, a probability cutoff outside 0 to 1, a row outside the data, a bad wording file.
 """
 
 from __future__ import annotations
