@@ -144,7 +144,7 @@ def extend_payload(args, payload: dict, *, adapter, loaded, data, row: int, attr
                                 on_request=args.on_request, response=response)
     payload["decision"] = "adverse" if reasons.adverse else "favourable"
     stability = None
-    if args.stability:
+    if args.stability and reasons.reasons:  # nothing to check when no reason is stated
         if not isinstance(background_size, int):
             raise InputError("--stability draws other background samples: it needs --background K, not all")
         stability = reason_stability(adapter, x, frame, resamples=args.stability,
