@@ -125,3 +125,20 @@ def test_wording_file_names_the_features_and_the_sheet_escapes_them(run_cli, cli
     code, _out, err = run_cli("case", cli_files["model"], cli_files["csv"], "--row", row,
                               "--reasons", "--wording", wording)
     assert code == 2 and "not a readable JSON wording file" in err
+
+
+def test_stability_marks_the_stated_reasons_only(run_cli, cli_files, adverse_row):
+    """Rank changes counted over background resamples; the 20 % threshold is common practice,
+    no source."""
+    row, low, _p = adverse_row
+    code, out, err = run_cli("case", cli_files["model"], cli_files["csv"], "--row", row,
+                             "--reasons", "--stability", "3", "--background", "50", "--json")
+    assert code == 0, err
+    payload = json.loads(out)
+    stated = [r["feature"] for r in payload["reasons"]]
+    assert all(isinstance(r["stable"], bool) for r in payload["reasons"])
+    assert payload["reasons_stability"]["resamples"] == 3
+    assert set(payload["reasons_stability"]["unstable"]) <= set(stated)
+    code, out, err = run_cli("case", cli_files["model"], cli_files["csv"], "--row", low,
+                             "--reasons", "--stability", "3", "--json")
+    assert code == 0 and "reasons_stability" not in json.loads(out)
