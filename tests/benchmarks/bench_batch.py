@@ -11,10 +11,15 @@ a fresh child process (a Dask LocalCluster on 127.0.0.1 started by the command):
 * the time for twice the rows with two workers (target: at most 2x the time, + 10 %);
 * the peak resident memory of the main process (ru_maxrss of the command's own process), for
   N and 2N rows: bounded by the chunk size, so it should not grow with the rows;
+* in one process with the champion (linear, fast enough for many rows): the peak for N and 2N
+  rows against the peak of reading the 2N-row file whole;
 * the reference in the same run: ``explain`` on 2,000 rows in one process with one numba
   thread, so the batch rate can be read as a ratio to the engine's plain call.
 
-The machine may be shared: the figures are only comparable within one run.
+The machine may be shared: the figures are only comparable within one run. The workers'
+processor time is reported too: on a shared machine (Linux groups a session's processes for
+fair scheduling) two workers may get no more processor time than one, and the rows per
+processor-second then show whether the two-worker run wastes any of it.
 """
 
 from __future__ import annotations
@@ -76,7 +81,46 @@ def run_batch(model: Path, data: Path, out: Path, workers: int, args) -> dict:
     peak = json.loads(proc.stderr.strip().splitlines()[-1])["peak_mib"]
     return {"rows": summary["rows_written"], "seconds": summary["seconds"], "wall": wall,
             "explaining": summary["seconds_explaining"], "processes": summary["processes_used"],
+            "cpu": summary["cpu_seconds"],
             "rate": summary["rows_written"] / summary["seconds_explaining"], "peak_mib": peak}
+
+
+WHOLE_FILE = """
+import resource, sys
+from workbench.engine.loading import load_data
+load_data(sys.argv[1])
+print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024)
+"""
+
+
+def run_in_process(model: Path, data: Path, out: Path, chunk_rows: int) -> dict:
+    cmd = [sys.executable, "-c", CHILD, "batch", str(model), str(data), "-o", str(out),
+           "--trust", "--json", "--chunk-rows", str(chunk_rows), "--background", "100"]
+    proc = subprocess.run(cmd, capture_output=True, text=True)
+    if proc.returncode != 0:
+        raise SystemExit(proc.stderr)
+    summary = json.loads(proc.stdout)
+    return {"rows": summary["rows_written"], "seconds": summary["seconds"],
+            "peak_mib": json.loads(proc.stderr.strip().splitlines()[-1])["peak_mib"]}
+
+
+def memory_check(rows: int, chunk_rows: int, tmp: Path) -> None:
+    """Peak memory in this process mode (the champion, linear: fast enough for many rows)."""
+    from demo_models.write import ensure_demo
+
+    model = ensure_demo()["lending_champion"]
+    small, large = tmp / "mem_n.parquet", tmp / "mem_2n.parquet"
+    subprocess.check_call([sys.executable, "-c", MAKER, str(rows), str(small), str(large)],
+                          stdout=subprocess.DEVNULL)
+    whole = float(subprocess.check_output([sys.executable, "-c", WHOLE_FILE, str(large)]))
+    print(f"memory, in one process, champion, chunks of {chunk_rows:,} rows; reading the "
+          f"{2 * rows:,}-row file whole would peak at {whole:,.0f} MiB")
+    results = []
+    for path in (small, large):
+        r = run_in_process(model, path, tmp / "mem_out.parquet", chunk_rows)
+        results.append(r)
+        print(f"  {r['rows']:>9,} rows  {r['seconds']:7.1f} s  peak {r['peak_mib']:6.0f} MiB")
+    print(f"  peak, 2N / N: {results[1]['peak_mib'] / results[0]['peak_mib']:.2f}")
 
 
 def main() -> None:
@@ -84,12 +128,19 @@ def main() -> None:
     parser.add_argument("--rows", type=int, default=1_000_000)
     parser.add_argument("--background", type=int, default=100)
     parser.add_argument("--chunk-rows", type=int, default=20_000)
+    parser.add_argument("--memory-rows", type=int, default=1_000_000,
+                        help="rows of the in-process memory check (0: skip it)")
+    parser.add_argument("--skip-workers", action="store_true", help="only the memory check")
     args = parser.parse_args()
     from demo_models.write import ensure_demo
 
     model = ensure_demo()["lending_challenger"]
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
+        if args.memory_rows:
+            memory_check(args.memory_rows, args.chunk_rows, tmp)
+        if args.skip_workers:
+            return
         small, large = tmp / "book_n.parquet", tmp / "book_2n.parquet"
         cols = subprocess.check_output([sys.executable, "-c", MAKER, str(args.rows), str(small),
                                         str(large)]).decode().strip()
@@ -106,10 +157,15 @@ def main() -> None:
                   f"(run {r['seconds']:6.1f} s, wall {r['wall']:6.1f} s, {r['processes']} "
                   f"process(es))  {r['rate']:8,.0f} rows/s ({r['rate'] / reference:4.2f}x "
                   f"reference)  main process peak {r['peak_mib']:5.0f} MiB")
+            print(f"{'':14s} workers' processor time {r['cpu']:7.1f} s = {r['cpu'] / r['explaining']:.2f} "
+                  f"cores busy on average; {r['rows'] / r['cpu']:,.0f} rows per processor-second")
         print(f"two workers / one worker throughput: {two['rate'] / one['rate']:.2f}x (target >= 1.7)")
         print(f"time for 2N / time for N (two workers, explaining): "
               f"{double['explaining'] / two['explaining']:.2f} "
               "(target <= 2.2)")
+        per_cpu = (two["rows"] / two["cpu"]) / (one["rows"] / one["cpu"])
+        print(f"rows per processor-second, two workers / one: {per_cpu:.2f} (1.0 = no parallel "
+              "overhead; the throughput ratio can only reach the cores the machine gives us)")
         print(f"main process peak, 2N / N: {double['peak_mib'] / two['peak_mib']:.2f}")
 
 

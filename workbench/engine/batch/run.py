@@ -99,6 +99,7 @@ class BatchSummary:
     background_positions: tuple[int, ...] = ()  # row positions of the background rows
     seconds_explaining: float = 0.0  # from the first chunk sent to the last one written
     processes_used: int = 0  # distinct processes that explained chunks in this call
+    cpu_seconds: float = 0.0  # processor time those processes spent explaining
 
     def as_dict(self) -> dict:
         return {"output": str(self.output), "rejects": None if self.rejects is None else str(self.rejects),
@@ -111,7 +112,7 @@ class BatchSummary:
                 "settings": self.settings.as_dict(), "started_over": self.started_over,
                 "notes": list(self.notes), "background_positions": list(self.background_positions),
                 "seconds_explaining": self.seconds_explaining,
-                "processes_used": self.processes_used}
+                "processes_used": self.processes_used, "cpu_seconds": self.cpu_seconds}
 
 
 def check_settings(adapter, settings: BatchSettings) -> BatchSettings:
@@ -195,6 +196,7 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
     written_now = 0
     chunk_notes: list[str] = []
     processes: set[str] = set()
+    cpu_seconds = 0.0
 
     first_sent = None
 
@@ -218,6 +220,7 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
             chunk_notes.extend(n for n in result.notes if n not in chunk_notes)
             written_now += 1
             processes.add(result.worker)
+            cpu_seconds += result.cpu_seconds
             if watch is not None:
                 watch(_status(reader, work, total_read, resumed_rows,
                               time.perf_counter() - (first_sent or started)))
@@ -245,7 +248,7 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
                         settings.seed, executor.name, time.perf_counter() - started, input_sha,
                         model_sha256, settings, work.started_over,
                         tuple(dict.fromkeys([*notes, *chunk_notes])), background_positions,
-                        explaining, len(processes))
+                        explaining, len(processes), cpu_seconds)
 
 
 def _fraction(reader, work, rows_seen: int) -> float:

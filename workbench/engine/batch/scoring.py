@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import os
 import socket
+import time
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -153,6 +154,7 @@ class ChunkResult:
     rejects: pd.DataFrame
     notes: tuple[str, ...] = ()
     worker: str = ""  # host:pid of the process that explained the chunk
+    cpu_seconds: float = 0.0  # processor time that process spent on the chunk
 
 
 def explain_chunk(job: ChunkJob, adapter, background: pd.DataFrame,
@@ -160,6 +162,7 @@ def explain_chunk(job: ChunkJob, adapter, background: pd.DataFrame,
     """Attributions (and reasons) of the rows of one chunk; rejects for those that fail."""
     if job.one_thread:
         _one_thread()
+    cpu_started = time.process_time()
     frame, problems = parse_numbers(adapter, job.frame)
     rows = frame[adapter.input_columns]
     positions = np.array([i for i in range(len(rows)) if i not in problems], dtype=np.int64)
@@ -185,7 +188,7 @@ def explain_chunk(job: ChunkJob, adapter, background: pd.DataFrame,
         notes = result.notes
     table = _row_table(adapter, settings, job, frame, rows, good, result)
     return ChunkResult(job.index, job.start, table, _reject_table(settings, job, problems), notes,
-                       f"{socket.gethostname()}:{os.getpid()}")
+                       f"{socket.gethostname()}:{os.getpid()}", time.process_time() - cpu_started)
 
 
 def _one_thread() -> None:
