@@ -39,12 +39,16 @@ class Job:
     fraction: float = 0.0
     message: str = ""
     started_at: float = field(default_factory=time.perf_counter)
+    result: object = None
+    error: BaseException | None = None
 
 
 class _Signals(QObject):
+    # Only plain numbers and text cross threads: the result or error waits on the Job itself,
+    # so no Python object travels through Qt's queued connections.
     progressed = Signal(float, str)
-    returned = Signal(object)
-    errored = Signal(object)
+    returned = Signal()
+    errored = Signal()
 
 
 class _Runnable(QRunnable):
@@ -63,12 +67,13 @@ class _Runnable(QRunnable):
                 self.signals.progressed.emit(float(fraction), str(message))
 
         try:
-            result = self.job.fn(progress, self.job.cancel)
+            self.job.result = self.job.fn(progress, self.job.cancel)
         except BaseException as exc:  # noqa: BLE001 - handed to the main thread
             exc.__traceback_text__ = traceback.format_exc()
-            self.signals.errored.emit(exc)
+            self.job.error = exc
+            self.signals.errored.emit()
         else:
-            self.signals.returned.emit(result)
+            self.signals.returned.emit()
 
 
 class JobRunner(QObject):
@@ -132,8 +137,8 @@ class JobRunner(QObject):
             return job
         signals = _Signals()
         signals.progressed.connect(lambda f, m, j=job: self._on_progress(j, f, m))
-        signals.returned.connect(lambda r, j=job: self._on_returned(j, r))
-        signals.errored.connect(lambda e, j=job: self._on_errored(j, e))
+        signals.returned.connect(lambda j=job: self._on_returned(j, j.result))
+        signals.errored.connect(lambda j=job: self._on_errored(j, j.error))
         self._signals[job.id] = signals
         self.pool.start(_Runnable(job, signals))
         return job

@@ -39,6 +39,7 @@ from workbench.ui.panels import FocusBar, SettingsPanel
 
 RECENT_LIMIT = 10
 RECENT_KEY = "recent_files"
+_FALLBACK_KEYS = {QKeySequence.StandardKey.Open: "Ctrl+O", QKeySequence.StandardKey.Quit: "Ctrl+Q"}
 
 
 class MainWindow(QMainWindow):
@@ -46,6 +47,11 @@ class MainWindow(QMainWindow):
                  synchronous: bool = False) -> None:
         super().__init__()
         self.ctx = ctx or Context.create(synchronous=synchronous)
+        # The window owns the shared objects, so closing it deletes them and every connection
+        # to its levels with them (nothing outlives the widgets it would call).
+        for shared in (self.ctx.workspace, self.ctx.focus, self.ctx.runner):
+            if shared.parent() is None:
+                shared.setParent(self)
         self.qsettings = qsettings or QSettings("workbench", "workbench")
         self.setWindowTitle("workbench")
         self.setAcceptDrops(True)
@@ -112,7 +118,13 @@ class MainWindow(QMainWindow):
     # ---- menus and keys -------------------------------------------------------------------------
     def _action(self, menu, text, slot, shortcut=None) -> QAction:
         action = QAction(text, self)
-        if shortcut is not None:
+        if isinstance(shortcut, QKeySequence.StandardKey):
+            # Some platforms (offscreen, minimal) define no standard keys: fall back to ours.
+            keys = QKeySequence.keyBindings(shortcut)
+            if not keys and shortcut in _FALLBACK_KEYS:
+                keys = [QKeySequence(_FALLBACK_KEYS[shortcut])]
+            action.setShortcuts(keys)
+        elif shortcut is not None:
             action.setShortcut(QKeySequence(shortcut))
         action.triggered.connect(slot)
         menu.addAction(action)

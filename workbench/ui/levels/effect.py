@@ -81,6 +81,7 @@ class EffectLevel(Level):
         self.curve_plot.on_hover(self._hover_curve)
         self.scatter_plot.on_hover(self._hover_scatter)
         self.ale_plot.on_hover(self._hover_ale)
+        self.dist_plot.on_hover(self._hover_distribution)
 
     def view_key(self) -> tuple:
         s = self.state
@@ -345,6 +346,20 @@ class EffectLevel(Level):
         xs = self._grid_x(curve.grid)
         i = int(np.argmin(np.abs(xs - x)))
         return f"{self.feature} = {curve.grid[i]}: mean {curve.pd[i]:.4g} ({curve.units})"
+
+    def _hover_distribution(self, x, y) -> str | None:
+        if self.curve is None:
+            return None
+        curve = self.curve.result
+        counts = np.asarray(curve.counts)
+        if curve.edges is None:
+            i = int(round(x))
+            return f"{curve.grid[i]}: {counts[i]:,} rows" if 0 <= i < len(counts) else None
+        edges = np.asarray(curve.edges, float)
+        i = int(np.searchsorted(edges, x) - 1)
+        if not 0 <= i < len(counts):
+            return None
+        return f"{self.feature} {edges[i]:.4g} to {edges[i + 1]:.4g}: {counts[i]:,} rows"
 
     def _hover_ale(self, x, y) -> str | None:
         if self.ale is None:

@@ -72,6 +72,8 @@ class PairsLevel(Level):
         self.matrix_plot.plot_widget.scene().sigMouseClicked.connect(self._clicked)
         self.matrix_plot.on_hover(self._hover)
         self.map_plot.on_hover(self._hover_map)
+        self.pair_scatter.on_hover(self._hover_scatter)
+        self.scatter_item = None
         self.colorbar = None
         self._reset()
 
@@ -82,6 +84,7 @@ class PairsLevel(Level):
         self.errors: dict[str, str] = {}
         self.pair_map = None
         self.sample = None
+        self.scatter_item = None
 
     def view_key(self) -> tuple:
         s = self.state
@@ -326,14 +329,27 @@ class PairsLevel(Level):
         plot.enableAutoRange()
         lim = float(np.nanmax(np.abs(joint))) or 1.0
         brushes = value_colours(joint, diverging_map(), limits=(-lim, lim))
-        item = pg.ScatterPlotItem(xa, xb, size=6, brush=brushes, pen=pg.mkPen(None), data=rows.tolist())
-        item.sigClicked.connect(lambda _i, pts, _e=None: pts and self.go(row=int(pts[0].data()), level="Case"))
+        # A faint outline keeps points near zero (pale in the middle of the map) visible.
+        item = pg.ScatterPlotItem(xa, xb, size=7, brush=brushes, pen=pg.mkPen(0, 0, 0, 70),
+                                  data=rows.tolist())
+        item.sigClicked.connect(lambda _i, pts, _e=None: len(pts) and self.go(row=int(pts[0].data()),
+                                                                             level="Case"))
         plot.addItem(item)
+        self.scatter_item, self.scatter_joint = item, dict(zip(rows.tolist(), joint.tolist(), strict=True))
         plot.getAxis("bottom").setTicks([ta] if ta else None)
         plot.getAxis("left").setTicks([tb] if tb else None)
         units = self.ctx.workspace.adapter(self.state.model).output_units
         self.pair_scatter.set_text(f"Pair scatter coloured by the joint attribution of {a} and {b} "
                                    f"(blue lowers, yellow raises; ±{lim:.2g} {units})", a, b)
+
+    def _hover_scatter(self, x, y) -> str | None:
+        if self.scatter_item is None:
+            return None
+        points = self.scatter_item.pointsAt(pg.QtCore.QPointF(x, y))
+        if len(points) == 0:
+            return None
+        row = int(points[0].data())
+        return f"row {row}: joint attribution {self.scatter_joint[row]:+.4g} — click to open this Case"
 
     def _scatter_axis(self, series: pd.Series, rows: np.ndarray, seed: int):
         values = series.to_numpy()[rows]

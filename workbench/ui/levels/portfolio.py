@@ -247,6 +247,7 @@ class PortfolioLevel(Level):
         self.model.set_rows(self._rows)
         if 0 <= sort_col < self.model.columnCount():
             self.model.sort(sort_col, sort_order)
+        self.table.resizeColumnsToContents()  # Qt samples at most 1000 rows for this
         self._summarise()
 
     def _score_failed(self, exc) -> None:
