@@ -164,3 +164,19 @@ def test_interactions_symmetric(data):
 
 def test_compile_kernels_returns_seconds():
     assert treeshap.compile_kernels() >= 0.0
+
+
+def test_interventional_variants_agree(data, monkeypatch):
+    """Feature-bit masks, path-slot masks (used beyond 62 features) and the per-pair walk give
+    the same values; the brute-force reference tests check the default one."""
+    X, y = data
+    ens = treeshap.from_estimator(RandomForestRegressor(4, max_depth=6, random_state=0).fit(X, y))
+    rows, background = X[:25], X[100:200]  # two background words
+    by_features = treeshap.shap_values(ens, rows, method="interventional", background=background)
+    walk = treeshap.shap_values(ens, rows, method="interventional", background=background,
+                                algorithm="classic")
+    monkeypatch.setattr(api, "FEATURE_BITS", False)
+    by_slots = treeshap.shap_values(ens, rows, method="interventional", background=background)
+    np.testing.assert_allclose(by_features.values, walk.values, atol=1e-12)
+    np.testing.assert_allclose(by_slots.values, walk.values, atol=1e-12)
+    assert by_features.summary == "masks: 4 trees" and walk.summary == "walk: 4 trees"

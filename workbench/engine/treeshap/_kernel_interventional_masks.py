@@ -49,20 +49,24 @@ def _leaf_mask(o, start, edges, e0, d):
     return mask
 
 
-@numba.njit(cache=True, nogil=True)
+@numba.njit(cache=True, nogil=True, parallel=True)
 def background_masks(Z, route, prev_same, tree_start, tree_use, leaf_start, edge_start, edges,
-                     max_nodes, masks, counts, follows):
-    """For up to 64 background rows z_j: masks[leaf, j] is z_j's fail mask on the leaf's path,
-    counts[leaf, j] its size, and bit j of follows[c] is set when z_j follows every split on
-    edge c's feature from the root down to c."""
-    o = np.zeros(max_nodes, np.int64)
-    for t in range(tree_start.size - 1):
+                     max_nodes, follows, n_unique, unique_mask, unique_count, unique_size):
+    """For up to 64 background rows z_j: bit j of follows[c] is set when z_j follows every
+    split on edge c's feature from the root down to c; per leaf, the distinct fail masks of the
+    rows (unique_mask[leaf, :n_unique[leaf]]), how many rows have each (unique_count) and how
+    many features each mask holds (unique_size). Rows with one mask share one leaf share."""
+    n_bg = Z.shape[0]
+    for t in numba.prange(tree_start.size - 1):
         if tree_use[t] == 0:
             continue
+        o = np.zeros(max_nodes, np.int64)
         start = tree_start[t]
+        n_lf = leaf_start[t + 1] - leaf_start[t]
+        masks = np.zeros((n_lf, n_bg), np.int64)
         for c in range(start, tree_start[t + 1]):
             follows[c] = 0
-        for j in range(Z.shape[0]):
+        for j in range(n_bg):
             _follow(Z[j], tree_start, t, route, prev_same, o)
             bit = np.int64(1) << j
             for c in range(start + 1, tree_start[t + 1]):
@@ -70,18 +74,28 @@ def background_masks(Z, route, prev_same, tree_start, tree_use, leaf_start, edge
                     follows[c] |= bit
             for lf in range(leaf_start[t], leaf_start[t + 1]):
                 d = edge_start[lf + 1] - edge_start[lf]
-                mk = _leaf_mask(o, start, edges, edge_start[lf], d)
-                masks[lf, j] = mk
-                cnt = 0
-                for s in range(d):
-                    cnt += (mk >> s) & 1
-                counts[lf, j] = cnt
+                masks[lf - leaf_start[t], j] = _leaf_mask(o, start, edges, edge_start[lf], d)
+        for lf in range(leaf_start[t], leaf_start[t + 1]):
+            row = np.sort(masks[lf - leaf_start[t]])
+            k = -1
+            for j in range(n_bg):
+                if k < 0 or row[j] != unique_mask[lf, k]:
+                    k += 1
+                    unique_mask[lf, k] = row[j]
+                    unique_count[lf, k] = 0
+                    size = 0
+                    for s in range(edge_start[lf + 1] - edge_start[lf]):
+                        size += (row[j] >> s) & 1
+                    unique_size[lf, k] = size
+                unique_count[lf, k] += 1
+            n_unique[lf] = k + 1
 
 
 @numba.njit(cache=True, nogil=True, parallel=True)
 def interventional_masks(X, route, parent, prev_same, values, tree_start, tree_target, tree_use,
                          leaf_start, leaf_of_node, edge_start, edges, max_nodes, max_depth,
-                         max_unique, masks, counts, follows, n_bg, w_pos, w_neg, scale, out):
+                         max_unique, follows, n_unique, unique_mask, unique_count, unique_size,
+                         n_bg, w_pos, w_neg, scale, out):
     """out[i] += scale * sum over (up to 64) background rows of the interventional shares of
     row i. A depth-first walk carries the set of background rows (one bit each) whose hybrids
     with x can still reach the node: a row drops out at an edge that neither x nor it follows
@@ -127,14 +141,15 @@ def interventional_masks(X, route, parent, prev_same, values, tree_start, tree_t
                     b += (fx >> s) & 1
                     acc[s] = 0.0
                 w_b = 0.0
-                while alive != 0:
-                    j = trailing_zeros(alive)
-                    alive &= alive - 1
-                    a = counts[lf, j]
-                    w_b += w_neg[a, b]
+                for u in range(n_unique[lf]):  # background rows grouped by their fail mask
+                    fm = unique_mask[lf, u]
+                    if fm & fx != 0:
+                        continue  # no hybrid of x with these rows reaches the leaf
+                    a = unique_size[lf, u]
+                    cnt = unique_count[lf, u]
+                    w_b += cnt * w_neg[a, b]
                     if a > 0:
-                        wp = w_pos[a, b]
-                        fm = masks[lf, j]
+                        wp = cnt * w_pos[a, b]
                         while fm != 0:
                             acc[trailing_zeros(fm)] += wp
                             fm &= fm - 1
@@ -147,3 +162,160 @@ def interventional_masks(X, route, parent, prev_same, values, tree_start, tree_t
                     f = feature[parent[edges[e0 + s]]]
                     for k in range(kv):
                         out[i, f, target if target >= 0 else k] += scale * share * values[nd, k]
+
+
+# -- the same with one bit per feature (models with at most MAX_BITS features) ---------------
+# The fail mask of x then builds up along the walk (a split x does not follow sets its
+# feature's bit for the whole subtree), so a leaf costs only the groups of background rows.
+
+
+@numba.njit(cache=True, nogil=True, parallel=True)
+def background_feature_masks(Z, route, parent, prev_same, tree_start, tree_use, leaf_start,
+                             edge_start, edges, max_nodes, follows, n_unique, unique_mask,
+                             unique_count, unique_size, row_mask, row_size):
+    """As background_masks, with masks over feature indices instead of path slots; also each
+    row's own mask and its size (row_mask, row_size), for leaves few rows reach."""
+    feature = route[2]
+    n_bg = Z.shape[0]
+    for t in numba.prange(tree_start.size - 1):
+        if tree_use[t] == 0:
+            continue
+        o = np.zeros(max_nodes, np.int64)
+        start = tree_start[t]
+        n_lf = leaf_start[t + 1] - leaf_start[t]
+        masks = np.zeros((n_lf, n_bg), np.int64)
+        for c in range(start, tree_start[t + 1]):
+            follows[c] = 0
+        for j in range(n_bg):
+            _follow(Z[j], tree_start, t, route, prev_same, o)
+            bit = np.int64(1) << j
+            for c in range(start + 1, tree_start[t + 1]):
+                if o[c - start] == 1:
+                    follows[c] |= bit
+            for lf in range(leaf_start[t], leaf_start[t + 1]):
+                mk = np.int64(0)
+                for s in range(edge_start[lf], edge_start[lf + 1]):
+                    if o[edges[s] - start] == 0:
+                        mk |= np.int64(1) << feature[parent[edges[s]]]
+                masks[lf - leaf_start[t], j] = mk
+                row_mask[lf, j] = mk
+                size = 0
+                while mk != 0:
+                    size += 1
+                    mk &= mk - 1
+                row_size[lf, j] = size
+        for lf in range(leaf_start[t], leaf_start[t + 1]):
+            row = np.sort(masks[lf - leaf_start[t]])
+            k = -1
+            for j in range(n_bg):
+                if k < 0 or row[j] != unique_mask[lf, k]:
+                    k += 1
+                    unique_mask[lf, k] = row[j]
+                    unique_count[lf, k] = 0
+                    size = 0
+                    w = row[j]
+                    while w != 0:
+                        size += 1
+                        w &= w - 1
+                    unique_size[lf, k] = size
+                unique_count[lf, k] += 1
+            n_unique[lf] = k + 1
+
+
+@numba.njit(cache=True, nogil=True, parallel=True)
+def interventional_feature_masks(X, route, prev_same, values, tree_start, tree_target,
+                                 tree_use, leaf_of_node, max_nodes, max_depth, follows,
+                                 n_unique, unique_mask, unique_count, unique_size, row_mask,
+                                 row_size, n_bg, w_pos, w_neg, scale, out):
+    """As interventional_masks, with x's fail mask carried down the walk as feature bits."""
+    left, right, feature = route[0], route[1], route[2]
+    n_out = out.shape[2]
+    everyone = np.int64(-1) if n_bg == 64 else (np.int64(1) << n_bg) - 1
+    for i in numba.prange(X.shape[0]):
+        x = X[i]
+        o = np.zeros(max_nodes, np.int64)
+        st_node = np.zeros(2 * max_depth + 4, np.int64)
+        st_alive = np.zeros(2 * max_depth + 4, np.int64)
+        st_fail = np.zeros(2 * max_depth + 4, np.int64)
+        for t in range(tree_start.size - 1):
+            if tree_use[t] == 0:
+                continue
+            start = tree_start[t]
+            target = tree_target[t]
+            kv = n_out if target < 0 else 1
+            _follow(x, tree_start, t, route, prev_same, o)
+            st_node[0] = start
+            st_alive[0] = everyone
+            st_fail[0] = 0
+            top = 1
+            while top > 0:
+                top -= 1
+                nd = st_node[top]
+                alive = st_alive[top]
+                fx = st_fail[top]
+                if left[nd] >= 0:
+                    bit = np.int64(1) << feature[nd]
+                    for side in range(2):
+                        c = left[nd] if side == 0 else right[nd]
+                        if o[c - start] == 1:
+                            w = alive
+                            fc = fx
+                        else:
+                            w = alive & follows[c]
+                            fc = fx | bit
+                        if w != 0:
+                            st_node[top] = c
+                            st_alive[top] = w
+                            st_fail[top] = fc
+                            top += 1
+                    continue
+                lf = leaf_of_node[nd]
+                b = 0
+                w = fx
+                while w != 0:
+                    b += 1
+                    w &= w - 1
+                n_alive = 0
+                w = alive
+                while w != 0:
+                    n_alive += 1
+                    w &= w - 1
+                w_b = 0.0
+                if n_alive <= n_unique[lf]:
+                    # few rows reach the leaf: take them one by one (all compatible)
+                    while alive != 0:
+                        j = trailing_zeros(alive)
+                        alive &= alive - 1
+                        a = row_size[lf, j]
+                        w_b += w_neg[a, b]
+                        if a > 0:
+                            wp = w_pos[a, b] * scale
+                            fm = row_mask[lf, j]
+                            while fm != 0:
+                                f = trailing_zeros(fm)
+                                fm &= fm - 1
+                                for k in range(kv):
+                                    out[i, f, target if target >= 0 else k] += wp * values[nd, k]
+                else:
+                    # many rows: take them by groups with one fail mask
+                    for u in range(n_unique[lf]):
+                        fm = unique_mask[lf, u]
+                        if fm & fx != 0:
+                            continue
+                        a = unique_size[lf, u]
+                        cnt = unique_count[lf, u]
+                        w_b += cnt * w_neg[a, b]
+                        if a > 0:
+                            wp = cnt * w_pos[a, b] * scale
+                            while fm != 0:
+                                f = trailing_zeros(fm)
+                                fm &= fm - 1
+                                for k in range(kv):
+                                    out[i, f, target if target >= 0 else k] += wp * values[nd, k]
+                if w_b != 0.0:
+                    w_b *= scale
+                    while fx != 0:
+                        f = trailing_zeros(fx)
+                        fx &= fx - 1
+                        for k in range(kv):
+                            out[i, f, target if target >= 0 else k] -= w_b * values[nd, k]

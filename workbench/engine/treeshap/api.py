@@ -22,6 +22,7 @@ from workbench.engine.treeshap.ensemble import TreeEnsemble
 from workbench.engine.treeshap.results import TreeInteractionResult, TreeShapResult
 
 CHUNK_ROWS = 1000  # rows between progress / cancel checks
+FEATURE_BITS = True  # interventional masks over features when there are at most 62 (tests flip)
 BLOCK_ROWS = 64  # most rows swept through a tree together (the arithmetic vectorises over them)
 BLOCK_SCRATCH = 16 * 2**20  # bytes of sweep tables per task that set a smaller block
 LINEAR_SCRATCH_LIMIT = 64 * 2**20  # bytes of sweep tables per task before a tree goes classic
@@ -146,30 +147,47 @@ def shap_values(ens: TreeEnsemble, X, *, method: str = "path", background=None,
         leaf_of_node = np.full(ens.left.size, -1, np.int64)
         leaf_of_node[p.leaf_nodes] = np.arange(n_leaves)
         word = _kernel_interventional_masks.BACKGROUND_WORD
+        feature_bits = FEATURE_BITS and ens.n_features <= _kernel_interventional_masks.MAX_BITS
         bg_chunks = list(jobs.chunk_slices(Z.shape[0], word))
-        masks = np.zeros((n_leaves, word), np.int64)
-        counts = np.zeros((n_leaves, word), np.int64)
         follows = np.zeros(ens.left.size, np.int64)
+        n_unique = np.zeros(n_leaves, np.int64)
+        unique_mask = np.zeros((n_leaves, word), np.int64)
+        unique_count = np.zeros((n_leaves, word), np.int64)
+        unique_size = np.zeros((n_leaves, word), np.int64)
+        row_mask = np.zeros((n_leaves, word) if feature_bits else (0, word), np.int64)
+        row_size = np.zeros_like(row_mask)
         row_chunk = max(1, CHUNK_ROWS * 100 // Z.shape[0])
         row_chunks = list(jobs.chunk_slices(n, row_chunk))
         steps = len(bg_chunks) * len(row_chunks)
         done = 0
         for zs in bg_chunks:
             Zc = np.ascontiguousarray(Z[zs])
-            if use_masks.any():
+            if use_masks.any() and feature_bits:
+                _kernel_interventional_masks.background_feature_masks(
+                    Zc, route, ens.parent, p.prev_same, ens.tree_start, use_masks,
+                    p.leaf_start, p.leaf_edge_start, p.leaf_edges, max_nodes, follows,
+                    n_unique, unique_mask, unique_count, unique_size, row_mask, row_size)
+            elif use_masks.any():
                 _kernel_interventional_masks.background_masks(
                     Zc, route, p.prev_same, ens.tree_start, use_masks, p.leaf_start,
-                    p.leaf_edge_start, p.leaf_edges, max_nodes, masks, counts, follows)
+                    p.leaf_edge_start, p.leaf_edges, max_nodes, follows, n_unique, unique_mask,
+                    unique_count, unique_size)
             for sl in row_chunks:
                 jobs.step(progress, cancel, done / steps, "interventional SHAP values")
                 done += 1
-                if use_masks.any():
+                if use_masks.any() and feature_bits:
+                    _kernel_interventional_masks.interventional_feature_masks(
+                        X[sl], route, p.prev_same, ens.values, ens.tree_start,
+                        ens.tree_target, use_masks, leaf_of_node, max_nodes, ens.max_depth,
+                        follows, n_unique, unique_mask, unique_count, unique_size, row_mask,
+                        row_size, Zc.shape[0], w_pos, w_neg, 1.0 / Z.shape[0], out[sl])
+                elif use_masks.any():
                     _kernel_interventional_masks.interventional_masks(
                         X[sl], route, ens.parent, p.prev_same, ens.values, ens.tree_start,
                         ens.tree_target, use_masks, p.leaf_start, leaf_of_node,
                         p.leaf_edge_start, p.leaf_edges, max_nodes, ens.max_depth, max_unique,
-                        masks, counts, follows, Zc.shape[0], w_pos, w_neg, 1.0 / Z.shape[0],
-                        out[sl])
+                        follows, n_unique, unique_mask, unique_count, unique_size, Zc.shape[0],
+                        w_pos, w_neg, 1.0 / Z.shape[0], out[sl])
                 if use_walk.any():
                     _kernel_interventional.interventional_shap(
                         X[sl], Zc, route, ens.values, ens.tree_start, ens.tree_target,
