@@ -1,4 +1,8 @@
-"""``workbench pairs MODEL DATA``: Friedman's H-statistics and associations of the input columns."""
+"""``workbench pairs MODEL DATA``: Friedman's H-statistics and associations of the input columns.
+
+"order" and "blocks" come from clustering the association matrix of the input columns
+(associations.cluster_order); H pairs are listed strongest first, only among the screened columns.
+"""
 
 from __future__ import annotations
 
