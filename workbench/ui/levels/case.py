@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
-from PySide6.QtGui import QBrush, QColor
+from PySide6.QtGui import QBrush, QColor, QFontMetrics
 from PySide6.QtWidgets import (
     QComboBox,
     QHBoxLayout,
@@ -37,6 +37,7 @@ from workbench.ui.reasons_panel import (
 from workbench.ui.results import values_digest
 
 TOP_BARS = 12
+LABEL_CHARS = 30
 CASE_CAUTION = (
     "<b>Read with care.</b> Contribution bars describe how this model arrived at its score for "
     "these values: they describe the model, not the world, and not the person behind the row. "
@@ -336,6 +337,7 @@ class CaseLevel(Level):
             bar_values = np.append(bar_values, rest_sum)
             self.bar_features.append("")
         self.bar_values = bar_values
+        self.bar_labels = labels
         self._draw_bars(labels, bar_values, adapter)
         self._draw_running(labels, bar_values, base, adapter)
         show_for_case_level(self.reasons_panel, self, attributions)
@@ -352,7 +354,13 @@ class CaseLevel(Level):
                                brushes=brushes, pens=[pg.mkPen(None)] * n)
         plot.addItem(bars)
         plot.addItem(pg.InfiniteLine(0, angle=90, pen=pg.mkPen(NEUTRAL, width=1)))
-        plot.getAxis("left").setTicks([list(zip(ys, labels, strict=True))])
+        # Feature labels: shortened to fit, and the axis told how wide they are (a squeezed pane
+        # would otherwise hide them); the full text is in the hover line.
+        labels = [t if len(t) <= LABEL_CHARS else t[: LABEL_CHARS - 1] + "…" for t in labels]
+        axis = plot.getAxis("left")
+        axis.setTicks([list(zip(ys, labels, strict=True))])
+        metrics = QFontMetrics(axis.font() if hasattr(axis, "font") else self.font())
+        axis.setWidth(max(metrics.horizontalAdvance(t) for t in labels) + 14)
         plot.setYRange(-0.6, n - 0.4, padding=0)
         span = float(np.max(np.abs(values))) if n else 1.0
         plot.setXRange(-span * 1.1, span * 1.1, padding=0)
@@ -406,7 +414,7 @@ class CaseLevel(Level):
         i = self._index_at(y)
         if i is None:
             return None
-        name = self.bar_features[i] or "the other features together"
+        name = self.bar_labels[i] if self.bar_features[i] else "the other features together"
         direction = "raises" if self.bar_values[i] > 0 else "lowers"
         return f"{name}: {self.bar_values[i]:+.4g} ({direction} the score)"
 
