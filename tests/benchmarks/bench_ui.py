@@ -1,5 +1,8 @@
 """Speed of the window (a script, not a test): ``python tests/benchmarks/bench_ui.py``.
 
+Run one part with its name as argument (``heartbeat``, ``trial_values``, ``portfolio_200k``,
+``trial_values_bars_only``).
+
 1. Heartbeat: a 10 ms timer on the main thread while engine jobs run in the pool; the worst gap
    between beats is the longest the window froze.
 2. Trial values: one edit in the Case level (re-score + re-attribute, synchronous), against
@@ -74,9 +77,14 @@ def heartbeat() -> dict:
     return out
 
 
-def trial_values() -> dict:
+def trial_values(*, with_reasons: bool = True) -> dict:
+    """One trial edit in the Case level; ``with_reasons=False`` leaves out the reasons panel
+    (reason statements, similar rows), which also reacts to every edit."""
     from workbench.engine.attributions import explain
+    from workbench.ui.levels import case as case_module
 
+    if not with_reasons:
+        case_module.show_for_case_level = lambda *args, **kwargs: None
     app, win = _window(synchronous=True)
     out = {}
     for slot in ("A", "B"):
@@ -130,7 +138,10 @@ def portfolio_200k() -> dict:
 
 
 if __name__ == "__main__":
+    only = sys.argv[1:]
     for name, fn in (("heartbeat", heartbeat), ("trial_values", trial_values),
-                     ("portfolio_200k", portfolio_200k)):
-        print(name, fn(), flush=True)
+                     ("portfolio_200k", portfolio_200k),
+                     ("trial_values_bars_only", lambda: trial_values(with_reasons=False))):
+        if not only or name in only:
+            print(name, fn(), flush=True)
     os._exit(0)  # skip Qt teardown
