@@ -46,8 +46,9 @@ CHILD = """
 import json, resource, sys
 from workbench.cli import main
 code = main(sys.argv[1:])
-peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
-print(json.dumps({"code": code, "peak_mib": peak}), file=sys.stderr)
+usage = resource.getrusage(resource.RUSAGE_SELF)
+print(json.dumps({"code": code, "peak_mib": usage.ru_maxrss / 1024,
+                  "cpu": usage.ru_utime + usage.ru_stime}), file=sys.stderr)
 """
 
 REFERENCE = """
@@ -78,12 +79,19 @@ def run_batch(model: Path, data: Path, out: Path, workers: int, args) -> dict:
     if proc.returncode != 0:
         raise SystemExit(proc.stderr)
     summary = json.loads(proc.stdout)
-    peak = json.loads(proc.stderr.strip().splitlines()[-1])["peak_mib"]
+    own = json.loads(proc.stderr.strip().splitlines()[-1])
+    peak = own["peak_mib"]
     return {"rows": summary["rows_written"], "seconds": summary["seconds"], "wall": wall,
             "explaining": summary["seconds_explaining"], "processes": summary["processes_used"],
-            "cpu": summary["cpu_seconds"],
+            "cpu": summary["cpu_seconds"], "main_cpu": own["cpu"],
             "rate": summary["rows_written"] / summary["seconds_explaining"], "peak_mib": peak}
 
+
+BASELINE = """
+import resource
+import workbench.cli, workbench.commands.batch, workbench.engine.batch  # noqa: F401
+print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024)
+"""
 
 WHOLE_FILE = """
 import resource, sys
@@ -113,8 +121,10 @@ def memory_check(rows: int, chunk_rows: int, tmp: Path) -> None:
     subprocess.check_call([sys.executable, "-c", MAKER, str(rows), str(small), str(large)],
                           stdout=subprocess.DEVNULL)
     whole = float(subprocess.check_output([sys.executable, "-c", WHOLE_FILE, str(large)]))
-    print(f"memory, in one process, champion, chunks of {chunk_rows:,} rows; reading the "
-          f"{2 * rows:,}-row file whole would peak at {whole:,.0f} MiB")
+    base = float(subprocess.check_output([sys.executable, "-c", BASELINE]))
+    print(f"memory, in one process, champion, chunks of {chunk_rows:,} rows; interpreter and "
+          f"libraries alone: {base:,.0f} MiB; reading the {2 * rows:,}-row file whole peaks at "
+          f"{whole:,.0f} MiB")
     results = []
     for path in (small, large):
         r = run_in_process(model, path, tmp / "mem_out.parquet", chunk_rows)
@@ -158,7 +168,8 @@ def main() -> None:
                   f"process(es))  {r['rate']:8,.0f} rows/s ({r['rate'] / reference:4.2f}x "
                   f"reference)  main process peak {r['peak_mib']:5.0f} MiB")
             print(f"{'':14s} workers' processor time {r['cpu']:7.1f} s = {r['cpu'] / r['explaining']:.2f} "
-                  f"cores busy on average; {r['rows'] / r['cpu']:,.0f} rows per processor-second")
+                  f"cores busy on average; {r['rows'] / r['cpu']:,.0f} rows per processor-second; "
+                  f"main process {r['main_cpu']:.1f} s")
         print(f"two workers / one worker throughput: {two['rate'] / one['rate']:.2f}x (target >= 1.7)")
         print(f"time for 2N / time for N (two workers, explaining): "
               f"{double['explaining'] / two['explaining']:.2f} "
