@@ -180,3 +180,14 @@ def test_interventional_variants_agree(data, monkeypatch):
     np.testing.assert_allclose(by_features.values, walk.values, atol=1e-12)
     np.testing.assert_allclose(by_slots.values, walk.values, atol=1e-12)
     assert by_features.summary == "masks: 4 trees" and walk.summary == "walk: 4 trees"
+
+
+def test_tree_groups_do_not_change_values(data, monkeypatch):
+    """Large ensembles are swept in groups of trees whose factor tables fit a memory limit."""
+    X, y = data
+    ens = treeshap.from_estimator(RandomForestRegressor(6, max_depth=5, random_state=0).fit(X, y))
+    whole = treeshap.shap_values(ens, X[:40])
+    monkeypatch.setattr(api, "TABLE_LIMIT", 1)  # one tree per group
+    assert len(api._tree_groups(ens, 3)) == 6
+    grouped = treeshap.shap_values(ens, X[:40])
+    np.testing.assert_allclose(grouped.values, whole.values, rtol=1e-12, atol=1e-14)

@@ -31,7 +31,8 @@ CLASSIC = 1
 
 
 @numba.njit(cache=True, nogil=True, parallel=True)
-def linear_tables(tree_start, parent, prev_same, r_comb, tree_m, tree_algo, q_nodes, q_weights):
+def linear_tables(tree_start, t0, t1, parent, prev_same, r_comb, tree_m, tree_algo, q_nodes,
+                  q_weights):
     """Row-independent factors of the linear sweep, per edge c and per state of (o_prev, o_c).
 
     With A_o(t) = r_comb (1 - t) + o t (the edge's factor when the path is followed, o = 1, or
@@ -39,12 +40,14 @@ def linear_tables(tree_start, parent, prev_same, r_comb, tree_m, tree_algo, q_no
       D[c, s, q] = A_oc(t_q) / A_op(t_q)                       (down sweep multiplier)
       C[c, s, q] = w_q [(o_c - r_c) / A_oc(t_q) - (o_p - r_p) / A_op(t_q)]  (share weights)
     for s = 0: (o_p, o_c) = (1, 1); s = 1: (1, 0); s = 2: (0, 0). (0, 1) cannot happen.
+    Only for trees t0 <= t < t1; row c of the tables is node tree_start[t0] + c.
     """
-    n = parent.size
+    node0 = tree_start[t0]
+    n = tree_start[t1] - node0
     m_max = q_nodes.shape[1]
     D = np.zeros((n, 3, m_max))
     C = np.zeros((n, 3, m_max))
-    for t in numba.prange(tree_start.size - 1):
+    for t in numba.prange(t0, t1):
         if tree_algo[t] != LINEAR:
             continue
         m = tree_m[t]
@@ -61,11 +64,11 @@ def linear_tables(tree_start, parent, prev_same, r_comb, tree_m, tree_algo, q_no
                     ac = rc * (1.0 - tq[q]) + oc * tq[q]
                     if pe >= 0:
                         ap = rp * (1.0 - tq[q]) + op * tq[q]
-                        D[c, s, q] = ac / ap
-                        C[c, s, q] = wq[q] * ((oc - rc) / ac - (op - rp) / ap)
+                        D[c - node0, s, q] = ac / ap
+                        C[c - node0, s, q] = wq[q] * ((oc - rc) / ac - (op - rp) / ap)
                     else:
-                        D[c, s, q] = ac
-                        C[c, s, q] = wq[q] * (oc - rc) / ac
+                        D[c - node0, s, q] = ac
+                        C[c - node0, s, q] = wq[q] * (oc - rc) / ac
     return D, C
 
 
@@ -76,7 +79,7 @@ def _pick(s, a0, a1, a2):
 
 @numba.njit(cache=True, nogil=True)
 def _linear_block(X, r0, R, t, route, parent, prev_same, values, tree_start, target, n_out, m,
-                  D, C, acc, state, G, H, sh):
+                  D, C, node0, acc, state, G, H, sh):
     """One tree, R rows at once (the row index innermost, so the arithmetic vectorises).
 
     acc[f, k, r] += share of feature f in output k for row r0 + r.
@@ -116,12 +119,12 @@ def _linear_block(X, r0, R, t, route, parent, prev_same, values, tree_start, tar
                 state[lcl, r] = 1
                 state[lcr, r] = 0
         for q in range(m):
-            dl0 = D[cl, 0, q]
-            dl1 = D[cl, 1, q]
-            dl2 = D[cl, 2, q]
-            dr0 = D[cr, 0, q]
-            dr1 = D[cr, 1, q]
-            dr2 = D[cr, 2, q]
+            dl0 = D[cl - node0, 0, q]
+            dl1 = D[cl - node0, 1, q]
+            dl2 = D[cl - node0, 2, q]
+            dr0 = D[cr - node0, 0, q]
+            dr1 = D[cr - node0, 1, q]
+            dr2 = D[cr - node0, 2, q]
             for r in range(R):
                 g = G[ln, q, r]
                 G[lcl, q, r] = g * _pick(state[lcl, r], dl0, dl1, dl2)
@@ -135,9 +138,9 @@ def _linear_block(X, r0, R, t, route, parent, prev_same, values, tree_start, tar
             for r in range(R):
                 sh[r] = 0.0
             for q in range(m):
-                c0 = C[c, 0, q]
-                c1 = C[c, 1, q]
-                c2 = C[c, 2, q]
+                c0 = C[c - node0, 0, q]
+                c1 = C[c - node0, 1, q]
+                c2 = C[c - node0, 2, q]
                 for r in range(R):
                     sh[r] += G[lc, q, r] * _pick(state[lc, r], c0, c1, c2)
             for k in range(kv):
@@ -154,9 +157,9 @@ def _linear_block(X, r0, R, t, route, parent, prev_same, values, tree_start, tar
                 for r in range(R):
                     sh[r] = 0.0
                 for q in range(m):
-                    c0 = C[c, 0, q]
-                    c1 = C[c, 1, q]
-                    c2 = C[c, 2, q]
+                    c0 = C[c - node0, 0, q]
+                    c1 = C[c - node0, 1, q]
+                    c2 = C[c - node0, 2, q]
                     for r in range(R):
                         h = H[lc, q, k, r]
                         sh[r] += h * _pick(state[lc, r], c0, c1, c2)
@@ -282,13 +285,14 @@ def _classic_tree(root, x, route, cover, values, target, n_out, phi, pf, pz, po,
 
 @numba.njit(cache=True, nogil=True, parallel=True)
 def path_shap(X, rows_per_block, route, parent, cover, values, tree_start, tree_target,
-              tree_algo, tree_m, prev_same, D, C, max_nodes, max_depth, out):
-    """out[i] (n_features, n_outputs) += path-dependent SHAP values of row i, all trees."""
+              tree_algo, tree_m, prev_same, t0, t1, D, C, max_nodes, max_depth, out):
+    """out[i] (n_features, n_outputs) += path-dependent SHAP values of row i, trees t0..t1-1
+    (D, C: their linear_tables)."""
     n = X.shape[0]
     n_feat = out.shape[1]
     n_out = out.shape[2]
-    n_trees = tree_start.size - 1
     m_max = max(1, D.shape[2])
+    node0 = tree_start[t0]
     B = rows_per_block
     n_blocks = (n + B - 1) // B
     for b in numba.prange(n_blocks):
@@ -306,10 +310,11 @@ def path_shap(X, rows_per_block, route, parent, cover, values, tree_start, tree_
         pw = np.zeros((levels, levels))
         stack = (np.zeros((2 * levels + 2, 4), np.int64), np.zeros((2 * levels + 2, 2)))
         phi = np.zeros((n_feat, n_out))
-        for t in range(n_trees):
+        for t in range(t0, t1):
             if tree_algo[t] == LINEAR:
                 _linear_block(X, r0, R, t, route, parent, prev_same, values, tree_start,
-                              tree_target[t], n_out, tree_m[t], D, C, acc, state, G, H, sh)
+                              tree_target[t], n_out, tree_m[t], D, C, node0, acc, state, G, H,
+                              sh)
             else:
                 for r in range(R):
                     phi[:, :] = 0.0

@@ -25,7 +25,8 @@ CHUNK_ROWS = 1000  # rows between progress / cancel checks
 FEATURE_BITS = True  # interventional masks over features when there are at most 62 (tests flip)
 BLOCK_ROWS = 64  # most rows swept through a tree together (the arithmetic vectorises over them)
 BLOCK_SCRATCH = 16 * 2**20  # bytes of sweep tables per task that set a smaller block
-LINEAR_SCRATCH_LIMIT = 64 * 2**20  # bytes of sweep tables per task before a tree goes classic
+LINEAR_SCRATCH_LIMIT = 64 * 2**20  # bytes of one row's sweep tables before a tree goes classic
+TABLE_LIMIT = 256 * 2**20  # bytes of row-independent sweep factors held at once (trees grouped)
 _Q_NODES, _Q_WEIGHTS = _prepare.quadrature_table()
 _ALGORITHM_NAMES = ("linear", "classic")
 
@@ -55,7 +56,7 @@ def choose_algorithms(ens: TreeEnsemble, algorithm: str = "auto") -> np.ndarray:
     m = _quadrature_sizes(ens)
     sizes = np.diff(ens.tree_start)
     width = np.where(ens.tree_target < 0, ens.n_outputs, 1)
-    scratch = sizes * m * (2 + width) * 8  # bytes of the F, G and H tables
+    scratch = sizes * m * (2 + width) * 8  # bytes of one row's state, G and H tables
     classic = (ens.paths.tree_zero_cover == 1) | (m > _prepare.MAX_QUADRATURE)
     classic |= scratch > LINEAR_SCRATCH_LIMIT
     return classic.astype(np.int64)
@@ -71,6 +72,19 @@ def _block_rows(ens: TreeEnsemble, n_rows: int, m_max: int) -> int:
     return max(1, min(block, -(-n_rows // threads)))
 
 
+def _tree_groups(ens: TreeEnsemble, m_max: int) -> list[tuple[int, int]]:
+    """Consecutive trees whose linear-sweep tables (6 m_max doubles per node) fit TABLE_LIMIT."""
+    per_node = 6 * m_max * 8
+    groups, t0, size = [], 0, 0
+    for t, nodes in enumerate(np.diff(ens.tree_start)):
+        if size and size + nodes * per_node > TABLE_LIMIT:
+            groups.append((t0, t))
+            t0, size = t, 0
+        size += nodes * per_node
+    groups.append((t0, ens.n_trees))
+    return groups
+
+
 def _summary(algos: list[str]) -> str:
     counts = Counter(algos)
     return ", ".join(f"{name}: {counts[name]} trees" for name in sorted(counts))
@@ -82,7 +96,15 @@ def raw_output(ens: TreeEnsemble, X) -> np.ndarray:
     out = np.empty((X.shape[0], ens.n_outputs))
     _route.raw_output(X, _route_of(ens), ens.values, ens.tree_start, ens.tree_target,
                       ens.offset, out)
+    if ens.binary_complement:
+        out[:, 0] = 1.0 - out[:, 1]
     return out
+
+
+def _complete(ens: TreeEnsemble, values: np.ndarray) -> None:
+    """Fill output 0 of a two-class probability model: its SHAP values are minus output 1's."""
+    if ens.binary_complement:
+        values[..., 0] = -values[..., 1]
 
 
 def model_matrix(ens: TreeEnsemble, frame) -> np.ndarray:
@@ -118,16 +140,21 @@ def shap_values(ens: TreeEnsemble, X, *, method: str = "path", background=None,
         q_nodes = np.ascontiguousarray(_Q_NODES[: m_max + 1, :m_max])
         q_weights = np.ascontiguousarray(_Q_WEIGHTS[: m_max + 1, :m_max])
         max_nodes = int(np.diff(ens.tree_start).max())
-        D, C = _kernel_path.linear_tables(ens.tree_start, ens.parent, ens.paths.prev_same,
-                                          ens.paths.r_comb, tree_m, algo, q_nodes, q_weights)
-        for sl in jobs.chunk_slices(n, CHUNK_ROWS):
-            jobs.step(progress, cancel, sl.start / max(n, 1), "tree SHAP values")
-            _kernel_path.path_shap(X[sl], _block_rows(ens, sl.stop - sl.start, m_max), route, ens.parent, ens.cover, ens.values,
-                                   ens.tree_start, ens.tree_target, algo, tree_m,
-                                   ens.paths.prev_same, D, C, max_nodes, ens.max_depth,
-                                   out[sl])
+        groups = _tree_groups(ens, m_max)
+        block = _block_rows(ens, min(n, CHUNK_ROWS), m_max)
+        for g, (t0, t1) in enumerate(groups):
+            D, C = _kernel_path.linear_tables(ens.tree_start, t0, t1, ens.parent,
+                                              ens.paths.prev_same, ens.paths.r_comb, tree_m,
+                                              algo, q_nodes, q_weights)
+            for sl in jobs.chunk_slices(n, CHUNK_ROWS):
+                jobs.step(progress, cancel, (g * n + sl.start) / max(n * len(groups), 1),
+                          "tree SHAP values")
+                _kernel_path.path_shap(X[sl], block, route, ens.parent, ens.cover, ens.values,
+                                       ens.tree_start, ens.tree_target, algo, tree_m,
+                                       ens.paths.prev_same, t0, t1, D, C, max_nodes,
+                                       ens.max_depth, out[sl])
         names = [_ALGORITHM_NAMES[a] for a in algo]
-        base = ens.offset + _expected_per_output(ens)
+        base = _base_value(ens)
         bg_rows = 0
     elif method == "interventional":
         if background is None:
@@ -198,11 +225,20 @@ def shap_values(ens: TreeEnsemble, X, *, method: str = "path", background=None,
         bg_rows = int(Z.shape[0])
     else:
         raise ValueError(f"method must be 'path' or 'interventional'; got {method!r}")
+    _complete(ens, out)
     jobs.step(progress, cancel, 1.0, "tree SHAP values")
     return TreeShapResult(values=out, base_value=base, method=method,
                           algorithm_per_tree=tuple(names), summary=_summary(names),
                           background_rows=bg_rows, output_kind=ens.output_kind,
                           output_names=ens.output_names)
+
+
+def _base_value(ens: TreeEnsemble) -> np.ndarray:
+    """Cover-weighted expected raw output (the path-dependent base value)."""
+    base = ens.offset + _expected_per_output(ens)
+    if ens.binary_complement:
+        base[0] = 1.0 - base[1]
+    return base
 
 
 def _expected_per_output(ens: TreeEnsemble) -> np.ndarray:
@@ -239,8 +275,9 @@ def interaction_values(ens: TreeEnsemble, X, *, progress=None,
             X[sl], _route_of(ens), ens.parent, ens.values, ens.tree_start, ens.tree_target,
             tree_m, p.r_comb, p.prev_same, p.leaf_start, p.leaf_nodes, p.leaf_edge_start,
             p.leaf_edges, max_nodes, max_unique, q_nodes, q_weights, out[sl])
+    _complete(ens, out)
     jobs.step(progress, cancel, 1.0, "tree SHAP interaction values")
-    return TreeInteractionResult(values=out, base_value=ens.offset + _expected_per_output(ens),
+    return TreeInteractionResult(values=out, base_value=_base_value(ens),
                                  method="path", summary=f"per-leaf: {ens.n_trees} trees",
                                  output_kind=ens.output_kind, output_names=ens.output_names)
 

@@ -51,6 +51,7 @@ class TreeEnsemble:
     values: np.ndarray
     preprocessor: object = None
     internal_columns: np.ndarray | None = None  # input column of each internal column
+    binary_complement: bool = False  # trees hold output 1 only; output 0 is 1 - output 1
     paths: _prepare.PathTables = field(init=False, repr=False)
 
     def __post_init__(self) -> None:

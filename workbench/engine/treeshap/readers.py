@@ -176,7 +176,8 @@ def _ordered(tree: _Tree) -> _Tree:
 
 
 def _assemble(trees, *, model_name, n_features, n_outputs, output_kind, output_names, offset,
-              input_float32, preprocessor=None, internal_columns=None) -> TreeEnsemble:
+              input_float32, preprocessor=None, internal_columns=None,
+              binary_complement=False) -> TreeEnsemble:
     trees = [_ordered(t) for t in trees]
     sizes = np.array([t.left.size for t in trees], np.int64)
     start = np.concatenate([[0], np.cumsum(sizes)]).astype(np.int64)
@@ -221,6 +222,7 @@ def _assemble(trees, *, model_name, n_features, n_outputs, output_kind, output_n
         values=np.ascontiguousarray(np.concatenate(values)),
         preprocessor=preprocessor,
         internal_columns=internal_columns,
+        binary_complement=bool(binary_complement),
     )
 
 
@@ -233,6 +235,14 @@ def from_estimator(est) -> TreeEnsemble:
         classifier = hasattr(est, "classes_")
         scale = 1.0 / len(members)
         trees = [_sk_tree(m, scale, classifier) for m in members]
+        complement = classifier and len(est.classes_) == 2 and all(
+            np.all(t.values[t.left < 0].sum(axis=1) > 0) for t in trees)
+        if complement:
+            # two class probabilities sum to one in every leaf: explain the second only and
+            # take the first as its complement (halves the work)
+            for t in trees:
+                t.values = t.values[:, 1:2]
+                t.target = 1
         if classifier:
             names = est.classes_
             kind = "probability"
@@ -241,7 +251,8 @@ def from_estimator(est) -> TreeEnsemble:
             kind = "value"
         return _assemble(trees, model_name=name, n_features=est.n_features_in_,
                          n_outputs=len(names), output_kind=kind, output_names=names,
-                         offset=np.zeros(len(names)), input_float32=True)
+                         offset=np.zeros(len(names)), input_float32=True,
+                         binary_complement=complement)
     if isinstance(est, _GB):
         n_out = est.estimators_.shape[1]
         trees = [_sk_tree(est.estimators_[i, k], est.learning_rate, False, target=k)
