@@ -61,7 +61,7 @@ from workbench.engine.metrics import (
     macro_auc,
     metrics_for_task,
 )
-from workbench.engine.validation import coerce_target
+from workbench.engine.validation import target_array
 
 # The figures compared per task (keys of metrics.metrics_for_task), and whether higher is better.
 COMPARED_METRICS: dict[str, tuple[tuple[str, bool], ...]] = {
@@ -152,27 +152,6 @@ def _check_columns(adapter_a, adapter_b, frame: pd.DataFrame) -> None:
     if problems:
         raise InputError("both models score the same rows, but the data lacks columns: "
                          + "; ".join(problems))
-
-
-# ----------------------------------------------------------------------------- labels
-def _labels(adapter: ModelAdapter, y, n: int) -> np.ndarray:
-    """Targets as the metrics take them: 0/1 (binary), class labels (multiclass), numbers."""
-    series = y.reset_index(drop=True) if isinstance(y, pd.Series) else pd.Series(np.asarray(y))
-    if len(series) != n:
-        raise InputError(f"{len(series)} target values for {n} rows")
-    series = coerce_target(adapter, series)
-    missing = int(series.isna().sum())
-    if missing:
-        raise InputError(f"the target is missing in {missing} row(s); drop those rows first")
-    if adapter.classes:
-        unknown = ~series.isin(adapter.classes)
-        if unknown.any():
-            raise InputError(f"the target holds value(s) that are not classes of the models "
-                             f"{adapter.classes}, for example {series[unknown].iloc[0]!r}")
-        if adapter.task == "binary":
-            return (series == adapter.positive_class).to_numpy(dtype=int)
-        return np.asarray(series.tolist())  # natural dtype: sklearn cannot type object labels
-    return series.to_numpy(dtype=float)
 
 
 # ----------------------------------------------------------------------------- bootstrap
@@ -447,7 +426,7 @@ def compare_versions(adapter_a: ModelAdapter, adapter_b: ModelAdapter, frame: pd
         raise InputError("a comparison needs at least two rows")
     if not float(moved_threshold) >= 0:
         raise InputError(f"the moved threshold must not be negative, not {moved_threshold}")
-    target = _labels(adapter_a, y, n)
+    target = target_array(adapter_a, y, n)
     w = as_weights(weight, n)
     notes: list[str] = []
     jobs.step(progress, cancel, 0.0, "scoring the rows with both models")

@@ -27,7 +27,7 @@ from workbench.engine.effects import CHUNK_ROWS, model_frame, stacked_frame
 from workbench.engine.errors import InputError
 from workbench.engine.jobs import chunk_slices, rng, step
 from workbench.engine.metrics import as_weights, default_metric, metric_function
-from workbench.engine.validation import coerce_target
+from workbench.engine.validation import target_array
 
 
 @dataclass(frozen=True)
@@ -68,28 +68,6 @@ class Importance:
     def order(self) -> np.ndarray:
         """Positions of the features, most important first (ties keep input order)."""
         return np.argsort(-self.mean, kind="stable")
-
-
-def _targets(adapter: ModelAdapter, y, n: int) -> np.ndarray:
-    """Target values in the form the metric takes (0/1 for binary, labels, or numbers)."""
-    series = y.reset_index(drop=True) if isinstance(y, pd.Series) else pd.Series(np.asarray(y))
-    if len(series) != n:
-        raise InputError(f"{len(series)} target values for {n} rows")
-    series = coerce_target(adapter, series)
-    missing = int(series.isna().sum())
-    if missing:
-        raise InputError(f"the target is missing in {missing} row(s); drop them or fill them first")
-    if adapter.classes:
-        unknown = ~series.isin(adapter.classes)
-        if unknown.any():
-            raise InputError(
-                f"the target holds value(s) that are not classes of the model "
-                f"{adapter.classes}, for example {series[unknown].iloc[0]!r}"
-            )
-        if adapter.task == "binary":
-            return (series == adapter.positive_class).to_numpy(dtype=int)
-        return np.asarray(series.tolist())  # native label type, as sklearn.metrics expects
-    return series.to_numpy(dtype=float)
 
 
 def auc_by_ranks(positive: np.ndarray, score: np.ndarray) -> float:
@@ -149,7 +127,7 @@ def permutation_importance(
     )
     x = model_frame(adapter, frame)
     n_all = len(x)
-    target = _targets(adapter, y, n_all)
+    target = target_array(adapter, y, n_all)
     weight = as_weights(sample_weight, n_all)
     if exposure is not None:
         if adapter.task != "count":

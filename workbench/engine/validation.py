@@ -145,3 +145,30 @@ def _num_text(v) -> str:
         return str(int(f)) if f.is_integer() else str(f)
     except (TypeError, ValueError):
         return str(v)
+
+
+def target_array(adapter: ModelAdapter, y, n: int) -> np.ndarray:
+    """Target values in the form the metrics take: 0/1 for the class of interest (binary), the
+    class labels in their natural type (multiclass; sklearn cannot type object labels), or
+    numbers (regression, counts). Raises InputError for a wrong length, missing values or
+    labels that are not the model's classes."""
+    from workbench.engine.errors import InputError
+
+    series = y.reset_index(drop=True) if isinstance(y, pd.Series) else pd.Series(np.asarray(y))
+    if len(series) != n:
+        raise InputError(f"{len(series)} target values for {n} rows")
+    series = coerce_target(adapter, series)
+    missing = int(series.isna().sum())
+    if missing:
+        raise InputError(f"the target is missing in {missing} row(s); drop them or fill them first")
+    if adapter.classes:
+        unknown = ~series.isin(adapter.classes)
+        if unknown.any():
+            raise InputError(
+                f"the target holds value(s) that are not classes of the model "
+                f"{adapter.classes}, for example {series[unknown].iloc[0]!r}"
+            )
+        if adapter.task == "binary":
+            return (series == adapter.positive_class).to_numpy(dtype=int)
+        return np.asarray(series.tolist())
+    return series.to_numpy(dtype=float)
