@@ -31,7 +31,7 @@ def test_visit_every_level_shows_its_results(demo_window):
     assert "Effect curve of debt_to_income" in effect.curve_plot.title
     assert "ALE curve of debt_to_income" in effect.ale_plot.title
     assert "Attribution scatter of debt_to_income" in effect.scatter_plot.title
-    assert len(effect.ice_items) == len(effect.curve.result.ice)
+    assert effect.ice_lines.shape == np.asarray(effect.curve.result.ice).shape
     assert "log-odds" in effect.curve_plot.axis_label("left")
     ranking = win.levels["Ranking"]
     assert "Permutation importance" in ranking.importance_plot.title
@@ -129,6 +129,17 @@ def test_ranking_bar_opens_effect(demo_window):
     ranking.click_bar_at(0)
     assert win.ctx.focus.state.level == "Effect" and win.ctx.focus.state.feature == top
     assert f"Effect curve of {top}" in win.levels["Effect"].curve_plot.title
+
+
+def test_effect_ice_line_opens_case(demo_window):
+    win = demo_window
+    win.show_level("Effect")
+    effect = win.levels["Effect"]
+    k = 3
+    x = float(effect.ice_x[1])
+    assert effect.ice_row_near(x, float(effect.ice_lines[k, 1]), tolerance=1e-9) == effect.ice_rows[k]
+    effect.open_case(effect.ice_row_near(x, float(effect.ice_lines[k, 1]), tolerance=1e-9))
+    assert win.ctx.focus.state.level == "Case" and win.ctx.focus.state.row == effect.ice_rows[k]
 
 
 def test_effect_point_and_example_open_case(demo_window):

@@ -7,6 +7,7 @@ blue-to-yellow diverging map. No pink-red to blue gradient anywhere.
 
 from __future__ import annotations
 
+import functools
 from pathlib import Path
 
 import numpy as np
@@ -27,10 +28,12 @@ MAX_SCATTER_POINTS = 20_000
 pg.setConfigOptions(background="w", foreground="k", antialias=True)
 
 
+@functools.cache
 def sequential_map() -> pg.ColorMap:
     return pg.colormap.get("cividis")
 
 
+@functools.cache
 def diverging_map() -> pg.ColorMap:
     return pg.colormap.get("CET-CBD1")
 
@@ -180,15 +183,22 @@ def value_colours(values: np.ndarray, cmap: pg.ColorMap | None = None,
     else:
         lo, hi = (np.nanpercentile(v[finite], [2, 98]) if finite.any() else (0.0, 1.0))
     scaled = np.clip((v - lo) / (hi - lo if hi > lo else 1.0), 0, 1)
-    table = cmap.getLookupTable(nPts=256, alpha=False)
-    out = []
-    for s, ok in zip(scaled, finite, strict=True):
-        if not ok:
-            out.append(pg.mkBrush(NEUTRAL))
-        else:
-            r, g, b = table[int(s * 255)]
-            out.append(pg.mkBrush(int(r), int(g), int(b), 200))
-    return out
+    # One shared brush per colour step: pyqtgraph draws spots far faster when brushes repeat.
+    brushes = _palette(cmap)
+    steps = np.clip((np.nan_to_num(scaled) * 255).astype(int), 0, 255)
+    grey = pg.mkBrush(NEUTRAL)
+    return [brushes[k] if ok else grey for k, ok in zip(steps, finite, strict=True)]
+
+
+_PALETTES: dict[object, list] = {}
+
+
+def _palette(cmap: pg.ColorMap) -> list:
+    key = getattr(cmap, "name", None) or id(cmap)
+    if key not in _PALETTES:
+        table = cmap.getLookupTable(nPts=256, alpha=False)
+        _PALETTES[key] = [pg.mkBrush(int(r), int(g), int(b), 200) for r, g, b in table]
+    return _PALETTES[key]
 
 
 def message_item(plot: pg.PlotItem, text: str) -> pg.TextItem:

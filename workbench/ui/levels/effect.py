@@ -77,7 +77,9 @@ class EffectLevel(Level):
         self.focus_contribution = None
         self.levels: list | None = None
         self.scatter_item = None
-        self.ice_items: list = []
+        self.ice_lines = np.zeros((0, 0))
+        self.ice_rows = np.zeros(0, dtype=int)
+        self.curve_plot.plot_widget.scene().sigMouseClicked.connect(self._curve_clicked)
         self.curve_plot.on_hover(self._hover_curve)
         self.scatter_plot.on_hover(self._hover_scatter)
         self.ale_plot.on_hover(self._hover_ale)
@@ -95,7 +97,7 @@ class EffectLevel(Level):
         self.associated = None
         self.focus_contribution = None
         self.levels = None
-        self.ice_items = []
+        self.ice_lines = np.zeros((0, 0))
         self.scatter_item = None
         feature = s.feature
         if adapter is not None and feature not in adapter.input_columns:
@@ -153,14 +155,15 @@ class EffectLevel(Level):
         ice = curve.centred() if self.centred.isChecked() else curve.ice
         pd_line = curve.pd - curve.pd[0] if self.centred.isChecked() else curve.pd
         self.ice_rows = rows[np.asarray(curve.ice_rows, dtype=int)]
-        self.ice_items = []
         focus_row = self.state.row
-        for line, row in zip(ice, self.ice_rows, strict=True):
-            item = pg.PlotDataItem(xs, line, pen=pg.mkPen(ICE_PEN, width=1))
-            item.setCurveClickable(True, width=6)
-            item.sigClicked.connect(lambda _item, _ev=None, r=int(row): self.open_case(r))
-            plot.addItem(item)
-            self.ice_items.append(item)
+        # All ICE lines as one item (NaN breaks between lines): hundreds of separate items
+        # would each re-run the view's auto-range and stall the window for seconds.
+        self.ice_x, self.ice_lines = xs, np.asarray(ice, float)
+        n_lines = len(self.ice_lines)
+        joined_x = np.tile(np.append(xs, np.nan), n_lines)
+        joined_y = np.column_stack([self.ice_lines, np.full(n_lines, np.nan)]).ravel()
+        plot.addItem(pg.PlotDataItem(joined_x, joined_y, pen=pg.mkPen(ICE_PEN, width=1),
+                                     connect="finite"))
         plot.addItem(pg.PlotDataItem(xs, pd_line, pen=pg.mkPen(CURVE, width=3), symbol="o",
                                      symbolSize=6, symbolBrush=CURVE, name="effect curve"))
         if focus_row is not None and focus_row in set(self.ice_rows.tolist()):
@@ -264,8 +267,8 @@ class EffectLevel(Level):
         if self.feature in attributions.features:
             j = list(attributions.features).index(self.feature)
             self.focus_contribution = float(attributions.values[0, j])
-        if self.sample is not None:
-            self._draw_scatter()
+        if self.scatter_item is not None:
+            self._draw_focus_marker()  # only the ring moves: no need to redraw every point
 
     def _draw_scatter(self) -> None:
         att, rows = self.sample.result, self.sample.rows
@@ -298,19 +301,30 @@ class EffectLevel(Level):
         plot.addItem(item)
         self.scatter_item = item
         plot.addItem(pg.InfiniteLine(0, angle=0, pen=pg.mkPen(NEUTRAL, width=1)))
+        self.focus_marker = None
+        self._draw_focus_marker()
         s = self.state
-        if s.row is not None and self.focus_contribution is not None:
-            v = ws.frame[self.feature].iloc[s.row]
-            x = _positions([v], self.levels)[0] if self.categorical else float(v) if pd.notna(v) else np.nan
-            if np.isfinite(x):
-                plot.addItem(pg.ScatterPlotItem([x], [self.focus_contribution], size=16,
-                                                brush=pg.mkBrush(None), pen=pg.mkPen(FOCUS_MARK, width=2.5),
-                                                symbol="o"))
         self._category_ticks(plot)
         adapter = ws.adapter(s.model)
         self.scatter_plot.set_text(
             f"Attribution scatter of {self.feature}: value against its contribution ({len(rows):,} rows)",
             self.feature, f"contribution ({adapter.output_units if adapter else ''})")
+
+    def _draw_focus_marker(self) -> None:
+        s, ws = self.state, self.ctx.workspace
+        plot = self.scatter_plot.plot
+        if getattr(self, "focus_marker", None) is not None:
+            plot.removeItem(self.focus_marker)
+            self.focus_marker = None
+        if s.row is None or self.focus_contribution is None:
+            return
+        v = ws.frame[self.feature].iloc[s.row]
+        x = _positions([v], self.levels)[0] if self.categorical else float(v) if pd.notna(v) else np.nan
+        if np.isfinite(x):
+            self.focus_marker = pg.ScatterPlotItem([x], [self.focus_contribution], size=16,
+                                                   brush=pg.mkBrush(None),
+                                                   pen=pg.mkPen(FOCUS_MARK, width=2.5))
+            plot.addItem(self.focus_marker)
 
     def _partner_colours(self, partner: str, rows: np.ndarray):
         series = self.ctx.workspace.frame[partner]
@@ -375,6 +389,24 @@ class EffectLevel(Level):
             return None
         row = points[0].data()
         return f"row {row}: contribution {points[0].pos().y():+.4g} — click to open this Case"
+
+    def ice_row_near(self, x: float, y: float, tolerance: float | None = None) -> int | None:
+        """The row whose ICE line passes closest above or below (x, y), within ``tolerance``
+        (default 3 % of the visible y range)."""
+        if self.ice_lines.size == 0:
+            return None
+        if tolerance is None:
+            (_, _), (y0, y1) = self.curve_plot.plot.vb.viewRange()
+            tolerance = 0.03 * abs(y1 - y0)
+        at_x = np.array([np.interp(x, self.ice_x, line) for line in self.ice_lines])
+        i = int(np.nanargmin(np.abs(at_x - y)))
+        return int(self.ice_rows[i]) if abs(at_x[i] - y) <= tolerance else None
+
+    def _curve_clicked(self, event) -> None:
+        point = self.curve_plot.plot.vb.mapSceneToView(event.scenePos())
+        row = self.ice_row_near(point.x(), point.y())
+        if row is not None:
+            self.open_case(row)
 
     def _point_clicked(self, _item, points, _ev=None) -> None:
         if len(points):
