@@ -107,17 +107,14 @@ def _linear_block(X, r0, R, t, route, parent, prev_same, values, tree_start, tar
         lcr = cr - start
         pe = prev_same[cl]  # the same for both children
         for r in range(R):
-            gl = goes_left(n, X[r0 + r, f], threshold, missing_left, cat_index, cat_left,
-                           cat_known)
-            if pe >= 0 and state[pe - start, r] != 0:
-                state[lcl, r] = 2  # an earlier split on f was already not followed
-                state[lcr, r] = 2
-            elif gl:
-                state[lcl, r] = 0
-                state[lcr, r] = 1
-            else:
-                state[lcl, r] = 1
-                state[lcr, r] = 0
+            # arithmetic, not branches: the direction is unpredictable from row to row
+            g = np.int64(goes_left(n, X[r0 + r, f], threshold, missing_left, cat_index,
+                                   cat_left, cat_known))
+            off = np.int64(0)
+            if pe >= 0:
+                off = np.int64(state[pe - start, r] != 0)  # f's earlier split not followed
+            state[lcl, r] = 2 * off + (1 - off) * (1 - g)
+            state[lcr, r] = 2 * off + (1 - off) * g
         for q in range(m):
             dl0 = D[cl - node0, 0, q]
             dl1 = D[cl - node0, 1, q]
