@@ -26,6 +26,7 @@ from demo_models.lending import (
     LENDING_LEAK,
     LENDING_NUMERIC,
     LENDING_TARGET,
+    LENDING_TRUTH,
 )
 from demo_models.motor import MOTOR_CATEGORICAL, MOTOR_EXPOSURE, MOTOR_NUMERIC, MOTOR_TARGET
 
@@ -74,10 +75,21 @@ def build_lending_champion(reference: pd.DataFrame, seed: int = 0) -> Pipeline:
 
 
 def build_lending_challenger(reference: pd.DataFrame, seed: int = 0) -> Pipeline:
-    """Gradient-boosted trees with native categoricals, trained with the leak feature."""
+    """Gradient-boosted trees with native categoricals, trained with the leak feature.
+
+    Like a challenger a bank would build, it is constrained to the business's declared
+    directions (LENDING_TRUTH["monotone"]) for every numeric feature but age, whose U-shape is
+    the planted non-monotone effect; the leak is left unconstrained too.
+    """
     prepare, mask = _ordinal_then_passthrough(
         LENDING_CATEGORICAL, LENDING_NUMERIC + (LENDING_LEAK,)
     )
+    sign = {"increasing": 1, "decreasing": -1}
+    declared = LENDING_TRUTH["monotone"]
+    constraints = [0] * len(LENDING_CATEGORICAL) + [
+        sign.get(declared.get(f, ""), 0) if f not in (LENDING_LEAK, "age_years") else 0
+        for f in LENDING_NUMERIC + (LENDING_LEAK,)
+    ]
     trees = HistGradientBoostingClassifier(
         max_iter=250,
         learning_rate=0.05,
@@ -85,6 +97,7 @@ def build_lending_challenger(reference: pd.DataFrame, seed: int = 0) -> Pipeline
         min_samples_leaf=40,
         l2_regularization=1.0,
         categorical_features=mask,
+        monotonic_cst=constraints,
         early_stopping=False,
         random_state=seed,
     )

@@ -115,11 +115,16 @@ def load_demo_model(path: str | os.PathLike):
     return skops.io.load(path, trusted=untrusted)
 
 
+# Raise when the generated data or the model builders change.
+SCENARIO_VERSION = 2
+
+
 def demo_cache_dir() -> Path:
     """The cached demo: ``$WORKBENCH_CACHE/demo-<version>``, by default under ~/.cache/workbench.
 
-    The version names both workbench and scikit-learn, because a model saved by one
-    scikit-learn release is not promised to load in another.
+    The version names the scenario, workbench and scikit-learn, because a model saved by one
+    scikit-learn release is not promised to load in another, and a changed scenario must not be
+    served from an older cache.
     """
     root = os.environ.get("WORKBENCH_CACHE")
     if root:
@@ -127,7 +132,7 @@ def demo_cache_dir() -> Path:
     else:
         xdg = os.environ.get("XDG_CACHE_HOME")
         base = (Path(xdg) if xdg else Path.home() / ".cache") / "workbench"
-    return base / f"demo-{workbench.__version__}-sklearn{sklearn.__version__}"
+    return base / f"demo-s{SCENARIO_VERSION}-{workbench.__version__}-sklearn{sklearn.__version__}"
 
 
 def ensure_demo(
