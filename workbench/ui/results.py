@@ -313,17 +313,10 @@ class Results:
         """Mean |SHAP interaction value| per pair, for tree models, when the engine offers it."""
         try:
             adapter = self._need(slot)
-            fn = None
-            for module, name in (("attributions", "interaction_strength"),
-                                 ("treeshap", "interaction_strength"),
-                                 ("attributions", "shap_interactions")):
-                part = engine_part(module)
-                fn = getattr(part, name, None) if part is not None else None
-                if fn is not None:
-                    break
-            if fn is None:
-                raise NotAvailable(f"SHAP interaction strength: {NOT_AVAILABLE} (for tree models, "
-                                   "once the engine's tree SHAP offers interaction values)")
+            fn = _engine_fn("shap_interactions", "shap_interaction_strength", "SHAP interaction strength")
+            if not engine_part("shap_interactions").supports(adapter):
+                raise NotAvailable("SHAP interaction strength is computed for tree models only "
+                                   f"(model {slot} is {adapter.model_type})")
         except NotAvailable as exc:
             return self._fail(on_error, exc)
         rows = self.sample_rows(state, 300)
@@ -331,8 +324,8 @@ class Results:
         opts = self._attribution_options()
 
         def work(progress, cancel):
-            return Sampled(rows, call_engine(fn, adapter, frame, progress=progress, cancel=cancel,
-                                             **opts))
+            return Sampled(rows, call_engine(fn, adapter, frame, sample=len(frame), progress=progress,
+                                             cancel=cancel, **opts))
 
         key = self.key("shapint", slot, state, rows=len(rows))
         return self._request(key, f"SHAP interaction strength (model {slot})", work, on_done,
