@@ -35,9 +35,12 @@ def _follow(x, tree_start, t, route, prev_same, o):
         gl = goes_left(nd, x[feature[nd]], threshold, missing_left, cat_index, cat_left,
                        cat_known)
         pe = prev_same[left[nd]]
-        ok = pe < 0 or o[pe - start] == 1
-        o[left[nd] - start] = 1 if (ok and gl) else 0
-        o[right[nd] - start] = 1 if (ok and not gl) else 0
+        ok = np.int64(1)
+        if pe >= 0:
+            ok = o[pe - start]
+        g = np.int64(gl)  # arithmetic, not branches: directions are unpredictable
+        o[left[nd] - start] = ok * g
+        o[right[nd] - start] = ok * (1 - g)
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
