@@ -147,3 +147,32 @@ def test_marking_a_feature_not_allowed_restates_the_reasons(qtbot, case):
     assert first not in panel._ticked()  # a flip never changes a not-allowed feature
     texts = [panel.reason_table.item(i, 1).text() for i in range(panel.reason_table.rowCount())]
     assert texts == panel.reasons.texts
+
+
+def test_wording_and_not_allowed_marks_live_in_the_project(demo_window, tmp_path):
+    """The demo's reason wording comes from the project; edits and not-allowed marks go back
+    into it, are saved in the project file, and a reopened project's wording is applied."""
+    from workbench.engine.reasons import FeatureWording, ReasonTemplates
+    from workbench.session.project import open_project, save_project
+    from workbench.ui.context import project_of
+
+    win = demo_window
+    win.show_level("Case")
+    case = win.levels["Case"]
+    panel = case.reasons_panel
+    project = project_of(win.ctx)
+    assert project.reason_templates["features"]["debt_to_income"]["display_name"] != "debt_to_income"
+    assert panel.templates.features["debt_to_income"].display_name == \
+        project.reason_templates["features"]["debt_to_income"]["display_name"]
+    edited = panel.templates.with_feature("annual_income", FeatureWording(display_name="Yearly pay <b>"))
+    panel.templates_changed.emit(edited)
+    panel.not_allowed_changed.emit(("region",))
+    assert project.reason_templates["features"]["annual_income"]["display_name"] == "Yearly pay <b>"
+    assert project.settings["not_allowed"] == ["region"]
+    path = save_project(project, tmp_path / "p.wbench")
+    reopened = open_project(path, allow_changed=True)
+    assert ReasonTemplates.from_dict(reopened.reason_templates).features["annual_income"].display_name == "Yearly pay <b>"
+    win.ctx.project = reopened
+    case.refresh(force=True)
+    assert panel.templates.features["annual_income"].display_name == "Yearly pay <b>"
+    assert panel.not_allowed == ("region",)

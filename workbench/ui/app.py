@@ -42,9 +42,20 @@ def open_demo(window, paths: dict | None = None, *, rows: int | None = None) -> 
     # We built these files ourselves, so their skops types are trusted without asking.
     window.open_model(paths["lending_champion"], "A", trust=True)
     window.open_model(paths["lending_challenger"], "B", trust=True)
+    _demo_wording(window)
     window.ctx.focus.reset()
     window.ctx.focus.update(feature=DEMO_FEATURE, pair=DEMO_PAIR, row=_riskiest_row(window))
     window.ctx.focus.reset(window.ctx.focus.state)
+
+
+def _demo_wording(window) -> None:
+    """Reason statements in the demo's own words (display names and units of the scenario)."""
+    from demo_models.lending import LENDING_DISPLAY
+    from workbench.engine.reasons import ReasonTemplates
+    from workbench.ui.context import project_of
+
+    templates = ReasonTemplates.from_display(LENDING_DISPLAY, outcome="the estimated default risk")
+    project_of(window.ctx).reason_templates = templates.to_dict()
 
 
 def _head(data, rows, from_frame):

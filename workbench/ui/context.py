@@ -22,3 +22,14 @@ class Context:
         workspace, focus = Workspace(), Focus()
         runner = JobRunner(synchronous=synchronous)
         return cls(workspace, focus, runner, Results(workspace, focus, runner))
+
+
+def project_of(ctx):
+    """The project of this window (created on first use and kept on the context)."""
+    from workbench.session.project import Project
+
+    project = getattr(ctx, "project", None)
+    if project is None:
+        project = Project()
+        ctx.project = project
+    return project

@@ -26,6 +26,8 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from workbench.engine.reasons import ReasonTemplates
+from workbench.ui.context import project_of
 from workbench.ui.levels.base import Level, register_level
 from workbench.ui.plotting import LOWERS, NEUTRAL, RAISES, TitledPlot, colour, message_item
 from workbench.ui.reasons_panel import (
@@ -126,6 +128,10 @@ class CaseLevel(Level):
         self.reasons_panel = ReasonsPanel(ctx.runner)  # reason statements, nearest flip, similar rows
         self.reasons_panel.trial_requested.connect(lambda values: load_trial_values(self.table, values))
         self.reasons_panel.row_requested.connect(lambda row: self.go(row=int(row)))
+        # the analyst's wording and not-allowed marks are kept in the project file
+        self.reasons_panel.templates_changed.connect(self._keep_templates)
+        self.reasons_panel.not_allowed_changed.connect(self._keep_not_allowed)
+        self._applied_project = None
         split.addWidget(scrolled(self.reasons_panel))
         split.setSizes([380, 900, 420])
         layout = QVBoxLayout(self)
@@ -155,7 +161,25 @@ class CaseLevel(Level):
         return (self.ctx.workspace.generation, s.model, s.row)
 
     # ---- rendering --------------------------------------------------------------------------------
+    def _keep_templates(self, templates) -> None:
+        project_of(self.ctx).reason_templates = templates.to_dict()
+
+    def _keep_not_allowed(self, features) -> None:
+        project_of(self.ctx).settings["not_allowed"] = list(features)
+
+    def _apply_project_wording(self) -> None:
+        """Take wording and not-allowed marks from a project opened or made since last time."""
+        project = getattr(self.ctx, "project", None)
+        if project is None or project is self._applied_project:
+            return
+        self._applied_project = project
+        if project.reason_templates:
+            self.reasons_panel.set_templates(ReasonTemplates.from_dict(project.reason_templates))
+        if project.settings.get("not_allowed"):
+            self.reasons_panel.set_not_allowed(project.settings["not_allowed"])
+
     def render(self) -> None:
+        self._apply_project_wording()
         ws, state = self.ctx.workspace, self.state
         self.trial = {}
         self.contributions = None

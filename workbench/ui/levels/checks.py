@@ -33,21 +33,13 @@ from workbench.engine.cache import cache_key
 from workbench.engine.checks import DIRECTIONS
 from workbench.session.audit import record
 from workbench.session.project import Project
+from workbench.ui.context import project_of
 from workbench.ui.levels.base import Level, register_level
 
 STATUS_MARKS = {"pass": ("●", "#009E73", "pass"), "warn": ("▲", "#B07A00", "warn"),
                 "fail": ("■", "#D55E00", "fail")}
 NO_GROUP = "(no group)"
 FOCUS_FIELDS = ("feature", "row", "pair")
-
-
-def project_of(ctx) -> Project:
-    """The project of this window (created on first use and kept on the context)."""
-    project = getattr(ctx, "project", None)
-    if project is None:
-        project = Project()
-        ctx.project = project
-    return project
 
 
 def sync_project(project: Project, workspace) -> Project:
