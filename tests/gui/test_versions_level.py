@@ -116,6 +116,8 @@ def test_cancelled_comparison_says_so_and_runs_again(versions):
 
 
 def test_scatter_is_thinned_above_its_point_limit(versions, monkeypatch):
+    """Above the point limit a seeded sample is drawn as points and every row goes into a 2-D
+    histogram drawn as shading (numpy.histogram2d counts all 300 rows)."""
     from workbench.ui.levels import versions as module
 
     window, level = versions
@@ -124,4 +126,7 @@ def test_scatter_is_thinned_above_its_point_limit(versions, monkeypatch):
     points = sum(len(i.data) for i in level.scatter.plot.items
                  if isinstance(i, pg.ScatterPlotItem))
     assert points == 120
-    assert "120 of 300 rows shown (seeded sample)" in level.scatter.title
+    assert "density of all 300 rows, points: 120 of them (seeded sample)" in level.scatter.title
+    assert level.density_counts is not None and level.density_counts.sum() == 300
+    assert any(isinstance(i, pg.ImageItem) for i in level.scatter.plot.items)
+

@@ -530,6 +530,9 @@ class VersionsLevel(Level):
         n = c.n
         shown = thin_indices(n, MAX_SCATTER_POINTS, self.ctx.workspace.settings.seed)
         self.shown_points = shown
+        self.density_counts = None
+        if len(shown) < n:  # large data: every row in a density layer, a sample drawn on top
+            self._draw_density(plot, c.response_a, c.response_b)
         cell_of = np.full(n, "both_accept", dtype=object)
         if c.swap is not None:
             for cell, rows in c.swap.rows.items():
@@ -551,11 +554,25 @@ class VersionsLevel(Level):
             for value, angle in ((c.cutoff_a, 90), (c.cutoff_b, 0)):
                 plot.addItem(pg.InfiniteLine(value, angle=angle, pen=pg.mkPen(
                     "#6A3D9A", width=1.2, style=Qt.PenStyle.DotLine)))
-        thinned = "" if len(shown) == n else f"; {len(shown):,} of {n:,} rows shown (seeded sample)"
+        thinned = "" if len(shown) == n else (
+            f"; grey shading: density of all {n:,} rows, points: {len(shown):,} of them (seeded sample)")
         self.scatter.set_text(f"Score agreement scatter: A against B, one point per row, "
                               f"coloured as the swap table cells, cutoffs dotted{thinned}",
                               f"score of A, champion ({c.units})",
                               f"score of B, challenger ({c.units})")
+
+    def _draw_density(self, plot, a: np.ndarray, b: np.ndarray, bins: int = 80) -> None:
+        """A 2-D histogram of all rows as grey shading (darker = more rows, on a log scale)."""
+        counts, xe, ye = np.histogram2d(a, b, bins=bins)
+        self.density_counts = counts
+        level = np.log1p(counts) / max(np.log1p(counts.max()), 1e-12)
+        rgba = np.zeros(counts.shape + (4,), dtype=np.uint8)
+        rgba[..., :3] = 60
+        rgba[..., 3] = (level * 200).astype(np.uint8)
+        image = pg.ImageItem(rgba)  # image[x bin, y bin], as histogram2d counts them
+        image.setRect(float(xe[0]), float(ye[0]), float(xe[-1] - xe[0]), float(ye[-1] - ye[0]))
+        image.setZValue(-10)
+        plot.addItem(image)
 
     def _nearest_point(self, x: float, y: float) -> int | None:
         c = self.comparison
