@@ -12,14 +12,14 @@ min / median / max in seconds, with BLAS and OpenMP held to one thread (the mach
 
 from __future__ import annotations
 
-import statistics
 import sys
-import time
 from pathlib import Path
 
 from threadpoolctl import threadpool_limits
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
+
+from timing import show, timed  # noqa: E402 - the scripts' own folder
 
 from demo_models.write import ensure_demo  # noqa: E402
 from workbench.engine.adapter import ModelAdapter  # noqa: E402
@@ -30,21 +30,6 @@ from workbench.engine.metrics import metric_function  # noqa: E402
 
 RESAMPLES = 1000
 REFERENCE_RESAMPLES = 50  # paired_bootstrap with sklearn is slow; timed on fewer, per resample
-
-
-def timed(fn, runs: int) -> list[float]:
-    out = []
-    for _ in range(runs):
-        t0 = time.perf_counter()
-        fn()
-        out.append(time.perf_counter() - t0)
-    return out
-
-
-def show(label: str, times: list[float]) -> float:
-    print(f"  {label:<46} min {min(times):8.3f}  median {statistics.median(times):8.3f}  "
-          f"max {max(times):8.3f} s")
-    return statistics.median(times)
 
 
 def main(runs: int = 3) -> None:
