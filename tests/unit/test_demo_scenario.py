@@ -360,7 +360,7 @@ def test_demo_cache_dir_honours_the_environment(monkeypatch, tmp_path):
     monkeypatch.setenv("WORKBENCH_CACHE", str(tmp_path))
     cache = demo_write.demo_cache_dir()
     assert cache.parent == tmp_path
-    assert re.fullmatch(r"demo-[\w.]+-sklearn[\w.]+", cache.name)
+    assert re.fullmatch(r"demo-s\d+-[\w.]+-sklearn[\w.]+", cache.name)
     monkeypatch.delenv("WORKBENCH_CACHE")
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "xdg"))
     assert demo_write.demo_cache_dir().parent == tmp_path / "xdg" / "workbench"
