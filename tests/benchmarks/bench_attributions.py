@@ -18,7 +18,6 @@ from __future__ import annotations
 
 import statistics
 import sys
-import time
 import warnings
 from pathlib import Path
 
@@ -29,26 +28,15 @@ from sklearn.ensemble import HistGradientBoostingClassifier, RandomForestClassif
 from threadpoolctl import threadpool_limits
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from timing import timed_together  # noqa: E402
 
 from workbench.engine.adapter import ModelAdapter  # noqa: E402
 from workbench.engine.attribution import tree as tree_module  # noqa: E402
 from workbench.engine.attributions import explain, select_background  # noqa: E402
 
 RUNS = 5
-
-
-def timed_together(steps):
-    """Time each (label, fn, before) step once per round, RUNS rounds, interleaved so that load
-    from other processes on a shared machine falls on all sides alike."""
-    times = {label: [] for label, _, _ in steps}
-    for _ in range(RUNS):
-        for label, fn, before in steps:
-            if before is not None:
-                before()
-            t0 = time.perf_counter()
-            fn()
-            times[label].append(time.perf_counter() - t0)
-    return times
 
 
 def show(label, times):
@@ -93,7 +81,7 @@ def bench(name, model, X, rows, form):
     if tree_module.kernel_supports(model):
         ours("tree")
         steps.append(("explain(tree), our kernel, warm", lambda: ours("tree"), None))
-    times = timed_together(steps)
+    times = timed_together(steps, RUNS)
     med = {label: show(label, t) for label, t in times.items()}
     t_shap = med["shap.TreeExplainer directly"]
     t_cold, t_warm = med["explain(tree-reference), cold"], med["explain(tree-reference), warm"]

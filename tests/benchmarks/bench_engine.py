@@ -24,6 +24,9 @@ from sklearn.inspection import partial_dependence as sk_partial_dependence
 from sklearn.inspection import permutation_importance as sk_permutation_importance
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from timing import timed_together  # noqa: E402
 
 from workbench.engine.adapter import ModelAdapter  # noqa: E402
 from workbench.engine.effects import model_frame, partial_dependence, stacked_frame  # noqa: E402
@@ -40,6 +43,10 @@ def timed(fn, runs: int = RUNS) -> tuple[float, float, float]:
         start = time.perf_counter()
         fn()
         times.append(time.perf_counter() - start)
+    return min(times), statistics.median(times), max(times)
+
+
+def spread(times: list[float]) -> tuple[float, float, float]:
     return min(times), statistics.median(times), max(times)
 
 
@@ -75,21 +82,27 @@ def main(n: int = 2000, p: int = 8) -> None:
     model, X, y = problem(n, p)
     adapter = ModelAdapter(model)
 
-    ours = timed(lambda: permutation_importance(adapter, X, y, metric="auc", repeats=REPEATS))
     x = model_frame(adapter, X)
     copies = p * REPEATS
-    stacked = permuted_copies(x, REPEATS)
-    floor = timed(lambda: adapter.response(stacked))
-    theirs = timed(
-        lambda: sk_permutation_importance(
-            model, X, y, scoring="roc_auc", n_repeats=REPEATS, random_state=0
-        )
+    # the floor scores what permutation importance must score: the rows as they are (for the
+    # baseline) and every shuffled copy, in one batch
+    stacked = pd.concat([x, permuted_copies(x, REPEATS)], ignore_index=True)
+    times = timed_together(
+        [
+            ("ours", lambda: permutation_importance(adapter, X, y, metric="auc",
+                                                    repeats=REPEATS), None),
+            ("floor", lambda: adapter.response(stacked), None),
+            ("sklearn", lambda: sk_permutation_importance(
+                model, X, y, scoring="roc_auc", n_repeats=REPEATS, random_state=0), None),
+        ],
+        RUNS,
     )
+    ours, floor, theirs = (spread(times[k]) for k in ("ours", "floor", "sklearn"))
     show(f"workbench permutation_importance ({copies} shuffles)", ours)
-    show(f"one batched prediction of the same {copies * n} shuffled rows", floor)
+    show(f"one batched prediction of the same {(copies + 1) * n} rows", floor)
     show("sklearn permutation_importance", theirs)
-    print(f"  ratio to one batched prediction: {ours[1] / floor[1]:.2f}")
-    print(f"  ratio to sklearn:                {ours[1] / theirs[1]:.2f}")
+    print(f"  ratio to one batched prediction: {ours[1] / floor[1]:.2f} (target <= 1.2)")
+    print(f"  ratio to sklearn:                {ours[1] / theirs[1]:.2f} (target <= 1)")
 
     curve = partial_dependence(adapter, X, "x0", grid_size=20, ice_rows=None)
     grid = curve.grid
