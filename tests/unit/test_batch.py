@@ -233,7 +233,7 @@ def test_a_changed_argument_or_input_starts_over_and_says_so(files, tree_adapter
         batch(tree_adapter, files["csv"], out, stop_after_chunks=1)
     events = []
     summary = batch(tree_adapter, files["csv"], out, seed=9, on_event=events.append)
-    assert summary.chunks_resumed == 0 and "arguments" in summary.started_over
+    assert summary.chunks_resumed == 0 and "--seed (0 then, 9 now)" in summary.started_over
     assert any("starting over" in e for e in events)
 
     changed = tmp_path / "changed.csv"
@@ -243,7 +243,98 @@ def test_a_changed_argument_or_input_starts_over_and_says_so(files, tree_adapter
         batch(tree_adapter, changed, out2, stop_after_chunks=1)
     files["frame"].iloc[:-2].to_csv(changed, index=False)
     summary = batch(tree_adapter, changed, out2)
-    assert "input file changed" in summary.started_over and summary.rows_read == N_ROWS - 2
+    assert "the input file (SHA-256" in summary.started_over and summary.rows_read == N_ROWS - 2
+
+
+def _interrupted(adapter, data, out, **options):
+    with pytest.raises(RuntimeError, match="test hook"):
+        batch(adapter, data, out, chunk_rows=300, stop_after_chunks=2, **options)
+    assert (parts_folder(out) / "manifest.json").is_file()
+
+
+def _no_part_reused(summary, whole):
+    assert summary.chunks_resumed == 0 and summary.chunks == whole.chunks
+    pd.testing.assert_frame_equal(read(summary.output), read(whole.output), check_exact=True)
+
+
+def test_a_resume_under_another_workbench_version_reuses_no_part(files, tree_adapter, tmp_path,
+                                                                 monkeypatch):
+    import workbench
+
+    whole = batch(tree_adapter, files["csv"], tmp_path / "whole.parquet", chunk_rows=300)
+    out = tmp_path / "o.parquet"
+    monkeypatch.setattr(workbench, "__version__", "0.0.1-old")
+    _interrupted(tree_adapter, files["csv"], out)
+    monkeypatch.setattr(workbench, "__version__", "0.0.2-new")
+    summary = batch(tree_adapter, files["csv"], out, chunk_rows=300)
+    assert "the workbench version (0.0.1-old then, 0.0.2-new now)" in summary.started_over
+    assert "2 finished chunk(s) were discarded" in summary.started_over
+    _no_part_reused(summary, whole)
+
+
+def test_a_resume_with_another_model_or_library_reuses_no_part(files, tree_adapter, tmp_path,
+                                                               monkeypatch):
+    from workbench.engine.batch import identity
+
+    whole = batch(tree_adapter, files["csv"], tmp_path / "whole.parquet", chunk_rows=300)
+    out = tmp_path / "o.parquet"
+    _interrupted(tree_adapter, files["csv"], out)
+    settings = BatchSettings(background_size=40, chunk_rows=300, id_column="account")
+    summary = run_batch(tree_adapter, files["csv"], out, settings=settings,
+                        model_sha256="another-model")
+    assert "the model file (SHA-256" in summary.started_over
+    _no_part_reused(summary, whole)
+
+    _interrupted(tree_adapter, files["csv"], out)
+    real = identity.library_versions()
+    monkeypatch.setattr(identity, "library_versions", lambda: {**real, "scikit-learn": "0.0"})
+    summary = batch(tree_adapter, files["csv"], out, chunk_rows=300)
+    assert f"the scikit-learn version ({real['scikit-learn']} then, 0.0 now)" in summary.started_over
+    _no_part_reused(summary, whole)
+
+
+@pytest.mark.parametrize("changed, named", [
+    ({"background_size": 41}, "--background (40 then, 41 now)"),
+    ({"id_column": None}, '--id-column ("account" then, null now)'),
+    ({"form": "path"}, '--form ("interventional" then, "path" now)'),
+])
+def test_a_resume_with_another_argument_reuses_no_part(files, tree_adapter, tmp_path, changed,
+                                                       named):
+    whole = batch(tree_adapter, files["csv"], tmp_path / "whole.parquet", chunk_rows=300,
+                  **changed)
+    out = tmp_path / "o.parquet"
+    _interrupted(tree_adapter, files["csv"], out)
+    summary = batch(tree_adapter, files["csv"], out, chunk_rows=300, **changed)
+    assert named in summary.started_over
+    _no_part_reused(summary, whole)
+
+
+def test_a_resume_for_another_class_of_interest_reuses_no_part(files, tmp_path):
+    df = files["frame"]
+    model = HistGradientBoostingClassifier(max_iter=8, max_leaf_nodes=5, random_state=0)
+    model.fit(df[["income", "debt_ratio", "age"]], df["region"])
+    north, west = ModelAdapter(model, positive_class="north"), ModelAdapter(model,
+                                                                             positive_class="west")
+    whole = batch(west, files["csv"], tmp_path / "whole.parquet", chunk_rows=300)
+    out = tmp_path / "o.parquet"
+    _interrupted(north, files["csv"], out)
+    summary = batch(west, files["csv"], out, chunk_rows=300)
+    assert "the class of interest, --class (north then, west now)" in summary.started_over
+    _no_part_reused(summary, whole)
+
+
+def test_a_manifest_of_an_older_format_is_not_trusted(files, tree_adapter, tmp_path):
+    import json
+
+    whole = batch(tree_adapter, files["csv"], tmp_path / "whole.parquet", chunk_rows=300)
+    out = tmp_path / "o.parquet"
+    _interrupted(tree_adapter, files["csv"], out)
+    manifest = parts_folder(out) / "manifest.json"
+    body = json.loads(manifest.read_text())
+    manifest.write_text(json.dumps({**body, "format": 1}))
+    summary = batch(tree_adapter, files["csv"], out, chunk_rows=300)
+    assert "manifest format 1" in summary.started_over
+    _no_part_reused(summary, whole)
 
 
 # ---- on a cluster -----------------------------------------------------------------------------

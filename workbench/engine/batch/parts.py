@@ -1,16 +1,18 @@
 """The work folder of a batch run: one part file per chunk, a manifest, atomic assembly.
 
-``OUT.parquet.parts/`` holds ``manifest.json`` (the fingerprint of the arguments, the SHA-256
-of the input and of the model, the chunk size and, per finished chunk, its row boundaries and
-counts), ``background.parquet`` (the background sample, so a resumed run uses the very same
+``OUT.parquet.parts/`` holds ``manifest.json`` (the run's identity: the workbench and library
+versions, the SHA-256 of the model and of the input, the class of interest and the settings, see
+:mod:`.identity`; its fingerprint; and per finished chunk its row boundaries and counts), ``background.parquet`` (the background sample, so a resumed run uses the very same
 rows) and per chunk ``part-000007.parquet`` with its ``part-000007.rejects.parquet``. A part
 counts as done only once the manifest lists it; both are written to a temporary name first and
 moved in with ``os.replace``, so a run killed at any moment leaves a folder a rerun can trust.
+
+A rerun whose identity differs in anything does not reuse a single part: it discards the folder
+and starts over, and says which things differ (``WorkFolder.started_over``).
 """
 
 from __future__ import annotations
 
-import hashlib
 import json
 import os
 import shutil
@@ -21,16 +23,11 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
 
-MANIFEST_FORMAT = 1
+from workbench.engine.batch.identity import differences, identity_fingerprint
+
+MANIFEST_FORMAT = 2  # 2: the run's identity with versions and class of interest
 MANIFEST = "manifest.json"
 BACKGROUND = "background.parquet"
-
-
-def fingerprint(settings: dict, *, model_sha256: str, input_sha256: str) -> str:
-    """SHA-256 of everything that decides the values written (not the number of workers)."""
-    blob = json.dumps({"format": MANIFEST_FORMAT, "settings": settings, "model": model_sha256,
-                       "input": input_sha256}, sort_keys=True, default=str)
-    return hashlib.sha256(blob.encode()).hexdigest()
 
 
 def parts_folder(out: Path) -> Path:
@@ -69,11 +66,12 @@ def write_table_atomic(table: pa.Table, path: Path) -> None:
 class WorkFolder:
     """The parts of one run; :meth:`open` decides between resuming and starting over."""
 
-    def __init__(self, out: Path, fingerprint_: str, header: dict):
+    def __init__(self, out: Path, identity: dict, header: dict):
         self.out = out
         self.folder = parts_folder(out)
-        self.fingerprint = fingerprint_
-        self.header = header
+        self.identity = identity
+        self.fingerprint = identity_fingerprint(identity)
+        self.header = {**header, "identity": identity}
         self.chunks: dict[int, dict] = {}
         self.started_over: str | None = None  # why an unfinished run's parts were discarded
 
@@ -81,25 +79,30 @@ class WorkFolder:
         manifest = self.folder / MANIFEST
         if self.folder.is_dir():
             old = _read_manifest(manifest)
-            if old is not None and old.get("fingerprint") == self.fingerprint:
+            if (old is not None and old.get("format") == MANIFEST_FORMAT
+                    and old.get("fingerprint") == self.fingerprint):
                 self.header = {**self.header, "background": old.get("background", {})}
                 self.chunks = {int(k): v for k, v in old.get("chunks", {}).items()
                                if (self.folder / v["file"]).is_file()
                                and (self.folder / v["rejects"]).is_file()}
                 return self
-            if old is None:
-                self.started_over = (f"{self.folder} holds no readable manifest; "
-                                     "its parts were discarded and the run starts over")
-            elif old.get("input", {}).get("sha256") != self.header["input"]["sha256"]:
-                self.started_over = ("the input file changed since the unfinished run in "
-                                     f"{self.folder}; starting over")
-            else:
-                self.started_over = ("the arguments (or the model) changed since the unfinished "
-                                     f"run in {self.folder}; starting over")
+            self.started_over = self._why_not_resumed(old)
             shutil.rmtree(self.folder)
         self.folder.mkdir(parents=True)
         self._save()
         return self
+
+    def _why_not_resumed(self, old: dict | None) -> str:
+        if old is None:
+            return (f"{self.folder} holds no readable manifest; its parts were discarded and "
+                    "the run starts over")
+        if old.get("format") != MANIFEST_FORMAT:
+            return (f"{self.folder} was written by another workbench version (manifest format "
+                    f"{old.get('format')}); its parts were discarded and the run starts over")
+        found = differences(old.get("identity") or {}, self.identity)
+        done = len(old.get("chunks") or {})
+        return (f"starting over: {'; '.join(found)} differ(s) from the unfinished run in "
+                f"{self.folder}, so its {done} finished chunk(s) were discarded")
 
     @property
     def resumed_rows(self) -> int:
@@ -191,4 +194,4 @@ def _read_manifest(path: Path) -> dict | None:
         data = json.loads(path.read_text(encoding="utf-8"))
     except (OSError, ValueError):
         return None
-    return data if isinstance(data, dict) and data.get("format") == MANIFEST_FORMAT else None
+    return data if isinstance(data, dict) else None

@@ -2,8 +2,9 @@
 
 The run, in order:
 1. open the input as chunks of ``settings.chunk_rows`` rows (:mod:`.reading`);
-2. fingerprint the arguments with the SHA-256 of the input and of the model; resume the work
-   folder when the fingerprint matches, otherwise start over and say why (:mod:`.parts`);
+2. take the run's identity (workbench and library versions, SHA-256 of the input and of the
+   model, class of interest, settings: :mod:`.identity`); resume the work folder when it is the
+   same, otherwise discard its parts, start over and say what differs (:mod:`.parts`);
 3. draw the background ONCE: a seeded uniform sample of ``background_size`` rows of the whole
    input (:func:`.sampling.reservoir_sample`), kept in the work folder;
 4. choose the attribution method ONCE, by explaining a few background rows with
@@ -31,7 +32,8 @@ import pyarrow as pa
 from workbench.engine import jobs
 from workbench.engine.attributions import explain
 from workbench.engine.batch.executors import DaskCluster, InProcess, run_chunks
-from workbench.engine.batch.parts import WorkFolder, fingerprint
+from workbench.engine.batch.identity import run_identity
+from workbench.engine.batch.parts import WorkFolder
 from workbench.engine.batch.reading import ChunkReader, text_categorical_columns
 from workbench.engine.batch.sampling import reservoir_sample
 from workbench.engine.batch.scoring import (
@@ -167,11 +169,11 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
                          text_columns=text_categorical_columns(adapter))
     jobs.step(progress, cancel, 0.0, "fingerprinting the input")
     input_sha = sha256_file(data)
-    header = {"input": {"path": str(data), "sha256": input_sha, **reader.options},
-              "model_sha256": model_sha256, "settings": settings.as_dict(),
+    header = {"input": {"path": str(data), **reader.options},
               "chunk_rows": settings.chunk_rows, "total_rows": reader.total_rows}
-    work = WorkFolder(out, fingerprint(settings.as_dict(), model_sha256=model_sha256,
-                                       input_sha256=input_sha), header).open()
+    identity = run_identity(settings.as_dict(), model_sha256=model_sha256,
+                            input_sha256=input_sha, class_of_interest=adapter.positive_class)
+    work = WorkFolder(out, identity, header).open()
     resumed_rows = work.resumed_rows
     if work.started_over:
         say(work.started_over)
