@@ -23,6 +23,41 @@ from workbench.ui.levels.base import Level, register_level
 from workbench.ui.segment import OPERATORS, Condition, describe_segment
 
 ROW_ROLE = Qt.ItemDataRole.UserRole + 1
+NO_EXPOSURE = "(none: one unit per row)"
+# Headline figures in the order shown, with the names the trade uses for them.
+METRIC_NAMES = {
+    "auc": "AUC", "gini": "Gini", "ks": "KS", "brier": "Brier score", "rmse": "RMSE",
+    "mae": "MAE", "r2": "R²", "poisson_deviance": "Poisson deviance",
+    "lorenz_gini": "Gini (ordered Lorenz curve)",
+}
+PORTFOLIO_CAUTION = (
+    "<b>Read with care.</b> The decisions here are the model's at the cutoff: they describe the "
+    "model, not the people behind the rows. Decisions about people must be reviewed by a person "
+    "and by compliance under local law. This is not legal advice.")
+
+
+def exposure_column(ctx) -> str | None:
+    """The column holding each row's exposure (time on risk), as chosen in the Portfolio."""
+    frame = ctx.workspace.frame
+    chosen = getattr(ctx, "exposure_column", None)
+    return chosen if frame is not None and chosen in frame.columns else None
+
+
+def guess_exposure(frame: pd.DataFrame | None, task: str | None) -> str | None:
+    """For a count model: the first numeric column whose name says exposure, else None."""
+    if frame is None or task != "count":
+        return None
+    for col in frame.columns:
+        if "exposure" in str(col).lower() and pd.api.types.is_numeric_dtype(frame[col]):
+            return str(col)
+    return None
+
+
+def exposure_unit(column: str | None) -> str:
+    """'per year' when the exposure column is in years, else 'per unit of exposure'."""
+    if column is None:
+        return "per row"
+    return "per year" if "year" in column.lower() else "per unit of exposure"
 
 
 def _format(value) -> str:
@@ -200,12 +235,28 @@ class PortfolioLevel(Level):
         self.table.sortByColumn(0, Qt.SortOrder.AscendingOrder)
         self.hint = QLabel("Double-click a row to open it as a Case.")
         self.hint.setStyleSheet("color: #555;")
+        self.exposure = QComboBox()
+        self.exposure.setMinimumContentsLength(18)
+        self.exposure.setToolTip("Count models: the column holding each row's time on risk; "
+                                 "frequencies, Poisson deviance and Gini are weighted by it")
+        self.exposure_row = QWidget()
+        exposure_layout = QHBoxLayout(self.exposure_row)
+        exposure_layout.setContentsMargins(0, 0, 0, 0)
+        exposure_layout.addWidget(QLabel("Exposure (time on risk):"))
+        exposure_layout.addWidget(self.exposure)
+        exposure_layout.addStretch(1)
+        self.caution = QLabel(PORTFOLIO_CAUTION)
+        self.caution.setWordWrap(True)
+        self.caution.setStyleSheet("background: #FFF8E1; padding: 6px; border: 1px solid #E0C070;")
         layout = QVBoxLayout(self)
         layout.addWidget(self.heading)
         layout.addWidget(self.segment)
+        layout.addWidget(self.exposure_row)
         layout.addWidget(self.summary_label)
         layout.addWidget(self.table, 1)
         layout.addWidget(self.hint)
+        layout.addWidget(self.caution)
+        self.exposure.activated.connect(self._exposure_chosen)
         self.table.doubleClicked.connect(self._open_case)
         self.segment.segment_changed.connect(lambda seg: self.go(segment=seg))
         self._scores: tuple[np.ndarray, np.ndarray] | None = None
@@ -226,6 +277,7 @@ class PortfolioLevel(Level):
             self.summary_label.setText("")
             return
         self.segment.set_columns([str(c) for c in frame.columns])
+        self._show_exposure_choice()
         self.segment.show_segment(state.segment)
         self.segment.error.setText("")
         try:
@@ -238,6 +290,35 @@ class PortfolioLevel(Level):
         self.model.set_rows(rows)
         self._summarise()
         self.ctx.results.scores(state.model, self._scored, self._score_failed, self.relevant())
+
+    def _show_exposure_choice(self) -> None:
+        """The exposure picker, for count models only; the first time, a guessed column."""
+        ws = self.ctx.workspace
+        adapter = ws.adapter(self.state.model)
+        task = adapter.task if adapter is not None else None
+        self.exposure_row.setVisible(task == "count")
+        self.caution.setVisible(task in ("binary", "multiclass"))
+        if task != "count":
+            return
+        frame = ws.frame
+        if exposure_column(self.ctx) is None and not getattr(self.ctx, "exposure_declined", False):
+            self.ctx.exposure_column = guess_exposure(frame, task)
+        numeric = [str(c) for c in frame.columns if pd.api.types.is_numeric_dtype(frame[c])
+                   and c != ws.settings.target]
+        self.exposure.blockSignals(True)
+        self.exposure.clear()
+        self.exposure.addItems([NO_EXPOSURE, *numeric])
+        self.exposure.setCurrentText(exposure_column(self.ctx) or NO_EXPOSURE)
+        self.exposure.blockSignals(False)
+
+    def _exposure_chosen(self, index: int) -> None:
+        text = self.exposure.itemText(index)
+        self.ctx.exposure_column = None if text == NO_EXPOSURE else text
+        self.ctx.exposure_declined = text == NO_EXPOSURE
+        if self._scores is not None:
+            self._fill(self.ctx.workspace.frame, self._scores)
+            self.model.set_rows(self._rows)
+        self._summarise()
 
     def _scored(self, result) -> None:
         self._scores = result
@@ -267,11 +348,19 @@ class PortfolioLevel(Level):
         if slot is not None and scores is not None:
             output, response = scores
             cutoff = ws.settings.cutoff
-            headers.append(f"score {self.state.model}")
+            m = self.state.model
+            if slot.adapter.task == "count":
+                # A frequency model: its output is a rate, and a cutoff only marks a band.
+                unit = exposure_unit(exposure_column(self.ctx))
+                score_name, side_name = f"frequency {m}", "vs cutoff"
+                tips[score_name] = f"model {m}: predicted claims {unit}"
+            else:
+                score_name, side_name = f"score {m}", "decision"
+                tips[score_name] = f"model {m}: {slot.adapter.response_units}"
+            headers.append(score_name)
             arrays.append(response)
-            tips[f"score {self.state.model}"] = f"model {self.state.model}: {slot.adapter.response_units}"
-            tips["decision"] = f"at or above / below the cutoff {cutoff:g}"
-            headers.append("decision")
+            tips[side_name] = f"at or above / below the cutoff {cutoff:g}"
+            headers.append(side_name)
             arrays.append(np.where(response >= cutoff, "at/above cutoff", "below cutoff").astype(object))
         if target:
             headers.append(f"label ({target})")
@@ -290,13 +379,67 @@ class PortfolioLevel(Level):
         parts = [f"<b>{len(rows):,}</b> of {ws.n_rows:,} rows — {describe_segment(self.state.segment)}"]
         name = f"model {self.state.model}" + (f" ({slot.name})" if slot else " (none open)")
         self.heading.setText(f"<b>Portfolio</b> — {name}")
+        self.metrics = None
         if self._scores is not None and len(rows):
             response = self._scores[1][rows]
             cutoff = ws.settings.cutoff
-            parts.append(f"mean score {np.mean(response):.4g}")
-            parts.append(f"{np.mean(response >= cutoff):.1%} at or above the cutoff {cutoff:g}")
-            parts.extend(self._metrics(rows, response))
+            if slot is not None and slot.adapter.task == "count":
+                parts.extend(self._count_summary(rows, response))
+            else:
+                parts.append(f"mean score {np.mean(response):.4g}")
+                parts.extend(self._metrics(rows, response))
+            parts.append(f"{np.mean(response >= cutoff):.1%} of rows at or above the cutoff {cutoff:g}")
         self.summary_label.setText(" · ".join(parts))
+
+    def _exposure_values(self, rows: np.ndarray) -> np.ndarray | None:
+        column = exposure_column(self.ctx)
+        if column is None:
+            return None
+        return pd.to_numeric(self.ctx.workspace.frame[column], errors="coerce").to_numpy(float)[rows]
+
+    def _count_summary(self, rows: np.ndarray, rate: np.ndarray) -> list[str]:
+        """A frequency model's figures: exposure, claims, actual and predicted frequency, the
+        Poisson deviance and the ordered-Lorenz Gini, all weighted by exposure when it is set."""
+        ws = self.ctx.workspace
+        column = exposure_column(self.ctx)
+        unit = exposure_unit(column)
+        e = self._exposure_values(rows)
+        weights = np.ones_like(rate) if e is None else e
+        usable = np.isfinite(weights) & (weights > 0)
+        out = []
+        if e is not None:
+            out.append(f"exposure {np.sum(weights[usable]):,.1f} ({column})")
+            predicted = np.sum(rate[usable] * weights[usable]) / np.sum(weights[usable])
+            out.append(f"predicted frequency {predicted:.4g} {unit} (exposure-weighted)")
+        else:
+            out.append(f"mean predicted claims {np.mean(rate):.4g} per row (no exposure chosen)")
+        y = ws.positive_labels(self.state.model)
+        if y is None:
+            return out
+        y = y[rows]
+        known = ~np.isnan(y) & usable
+        if known.sum() < 2:
+            return out
+        if e is not None:
+            out.append(f"actual frequency {np.sum(y[known]) / np.sum(e[known]):.4g} {unit} "
+                       f"({np.sum(y[known]):,.0f} claims)")
+        else:
+            out.append(f"actual mean {np.mean(y[known]):.4g} claims per row")
+        try:
+            from workbench.engine.metrics import metrics_for_task
+
+            m = metrics_for_task("count", y[known], rate[known],
+                                 exposure=None if e is None else e[known])
+        except InputError as exc:
+            return [*out, f"metrics: {exc}"]
+        self.metrics = m
+        weighted = " (exposure-weighted)" if e is not None else ""
+        out.append(f"Poisson deviance {m['poisson_deviance']:.4g}{weighted}")
+        out.append(f"Gini (ordered Lorenz curve{', by exposure' if e is not None else ''}) "
+                   f"{m['lorenz_gini']:.3f}")
+        if known.sum() < len(rows):
+            out.append(f"{len(rows) - int(known.sum()):,} rows left out (no label or exposure ≤ 0)")
+        return out
 
     def _metrics(self, rows: np.ndarray, response: np.ndarray) -> list[str]:
         ws = self.ctx.workspace
@@ -317,9 +460,9 @@ class PortfolioLevel(Level):
             return [*out, f"metrics: {exc}"]
         except Exception as exc:  # noqa: BLE001 - a metric failing must not break the table
             return [*out, f"metrics unavailable ({type(exc).__name__})"]
-        for name in ("auc", "gini", "ks", "brier", "rmse", "mae", "r2", "lorenz_gini", "poisson_deviance"):
+        for name, label in METRIC_NAMES.items():
             if name in m and m[name] is not None:
-                out.append(f"{name.upper() if len(name) <= 4 else name.replace('_', ' ')} {m[name]:.3f}")
+                out.append(f"{label} {m[name]:.3f}")
         self.metrics = m
         return out
 
