@@ -75,6 +75,37 @@ def _riskiest_row(window) -> int:
     return int(np.argmax(adapter.score(ws.frame)))
 
 
+def open_files(window, *, model: Path | None = None, data: Path | None = None,
+               target: str | None = None, model_b: Path | None = None,
+               trust: bool = False) -> None:
+    """What ``workbench open`` does: data first (so the model is checked against it), then the
+    models; with a model and data open, a first case, feature and pair are focused so that every
+    level has something to show."""
+    if data is not None:
+        window.open_data(data, "data", target=target)
+    if model is not None:
+        window.open_model(model, "A", trust=trust or None)
+    if model_b is not None:
+        window.open_model(model_b, "B", trust=trust or None)
+    adapter = window.ctx.workspace.adapter("A")
+    if adapter is None or window.ctx.workspace.frame is None:
+        return
+    import pandas as pd
+
+    frame = window.ctx.workspace.frame
+    # Numeric inputs first: their effect curves and pair maps say the most at a first look.
+    columns = sorted(adapter.input_columns, key=lambda c: not (
+        c in frame.columns and pd.api.types.is_numeric_dtype(frame[c])))
+    focus = window.ctx.focus
+    try:
+        row = _riskiest_row(window)
+    except Exception:  # noqa: BLE001 - data the model cannot score: the Portfolio says why
+        row = None
+    focus.update(row=row, feature=columns[0] if columns else None,
+                 pair=tuple(columns[:2]) if len(columns) >= 2 else None)
+    focus.reset(focus.state)
+
+
 def snapshot(window, directory: Path, *, timeout_s: float = 300.0) -> list[Path]:
     """Visit every level, wait for its jobs, and save a PNG of the window for each."""
     directory = Path(directory)
@@ -105,12 +136,7 @@ def run_app(*, demo: bool = False, snapshot_dir: Path | None = None, model: Path
         app.processEvents()
         open_demo(window)
     else:
-        if data is not None:
-            window.open_data(data, "data", target=target)
-        if model is not None:
-            window.open_model(model, "A", trust=trust or None)
-        if model_b is not None:
-            window.open_model(model_b, "B", trust=trust or None)
+        open_files(window, model=model, data=data, target=target, model_b=model_b, trust=trust)
     if snapshot_dir is not None:
         for path in snapshot(window, snapshot_dir):
             print(path)
