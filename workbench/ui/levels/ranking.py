@@ -10,6 +10,14 @@ from PySide6.QtWidgets import QHBoxLayout, QLabel, QVBoxLayout, QWidget
 from workbench.ui.levels.base import Level, register_level
 from workbench.ui.plotting import CURVE, SECOND, TitledPlot, colour, message_item
 
+# The metrics' names as the trade writes them (the engine keeps short keys).
+METRIC_LABELS = {"auc": "AUC", "log_loss": "log loss", "brier": "Brier score", "rmse": "RMSE",
+                 "mae": "MAE", "poisson_deviance": "Poisson deviance"}
+
+
+def metric_label(name: str) -> str:
+    return METRIC_LABELS.get(name, name.replace("_", " "))
+
 
 def _horizontal_bars(plot, values, labels, brush, errors=None) -> None:
     plot.clear()
@@ -42,12 +50,9 @@ class RankingLevel(Level):
         self.group_plot = TitledPlot("Blocks of associated features permuted together", "", "")
         for p in (self.importance_plot, self.attribution_plot, self.group_plot):
             p.plot.invertY(True)
-        self.attribution_plot.plot.setYLink(self.importance_plot.plot)
-        self.attribution_plot.plot.getAxis("left").setStyle(showValues=False)
-        self.attribution_plot.plot.getAxis("left").setWidth(8)
         plots = QHBoxLayout()
-        plots.addWidget(self.importance_plot, 3)
-        plots.addWidget(self.attribution_plot, 2)
+        plots.addWidget(self.importance_plot, 1)
+        plots.addWidget(self.attribution_plot, 1)
         self.note = QLabel("Click a bar to open that feature's Effect. Error bars: ± one standard "
                            "deviation over the permutation repeats.")
         self.note.setStyleSheet("color: #555;")
@@ -60,12 +65,14 @@ class RankingLevel(Level):
         layout.addWidget(self.group_plot, 1)
         layout.addWidget(self.note)
         self.order: list[str] = []
+        self.attribution_order: list[str] = []
         self.importance = None
         self.attributions = None
         self.groups: list[list[str]] = []
         for p in (self.importance_plot, self.attribution_plot):
             p.plot_widget.scene().sigMouseClicked.connect(lambda ev, p=p: self._clicked(p, ev))
-            p.on_hover(self._hover)
+        self.importance_plot.on_hover(lambda x, y: self._hover(self.order, y))
+        self.attribution_plot.on_hover(lambda x, y: self._hover(self.attribution_order, y))
         self.group_plot.on_hover(self._hover_group)
 
     def view_key(self) -> tuple:
@@ -75,7 +82,7 @@ class RankingLevel(Level):
     def render(self) -> None:
         ws, s = self.ctx.workspace, self.state
         self.importance = self.attributions = None
-        self.order, self.groups = [], []
+        self.order, self.attribution_order, self.groups = [], [], []
         slot = ws.slot(s.model)
         self.heading.setText(f"<b>Ranking</b> — model {s.model}" + (f" ({slot.name})" if slot else "")
                              + f", {len(self.ctx.results.segment_rows(s)) if ws.frame is not None else 0:,} rows in the segment")
@@ -117,39 +124,34 @@ class RankingLevel(Level):
 
     # ---- drawing ------------------------------------------------------------------------------
     def _draw(self) -> None:
+        """Each panel sorted by its own figure, largest first, with its own feature labels."""
         adapter = self.ctx.workspace.adapter(self.state.model)
         imp, att = self.importance, self.attributions
         if imp is not None:
             features = list(imp.features)
-            order = [features[i] for i in np.argsort(-np.nan_to_num(imp.mean, nan=-np.inf), kind="stable")]
-        elif att is not None:
-            mean_abs = np.abs(att.values).mean(axis=0)
-            order = [att.features[i] for i in np.argsort(-mean_abs, kind="stable")]
-        else:
-            return
-        self.order = order
-        if imp is not None:
-            pos = {f: i for i, f in enumerate(imp.features)}
-            means = np.array([imp.mean[pos[f]] for f in order])
-            spreads = np.array([imp.spread[pos[f]] for f in order])
-            _horizontal_bars(self.importance_plot.plot, means, order, colour(CURVE, 220), spreads)
+            ranked = np.argsort(-np.nan_to_num(imp.mean, nan=-np.inf), kind="stable")
+            self.order = [features[i] for i in ranked]
+            means, spreads = np.asarray(imp.mean)[ranked], np.asarray(imp.spread)[ranked]
+            _horizontal_bars(self.importance_plot.plot, means, self.order, colour(CURVE, 220), spreads)
             change = "drop" if imp.greater_is_better else "rise"
+            metric = metric_label(imp.metric)
             self.importance_plot.set_text(
-                f"Permutation importance: {change} in {imp.metric} when a feature is shuffled "
+                f"Permutation importance: {change} in {metric} when a feature is shuffled "
                 f"({imp.repeats} repeats, {imp.rows_used:,} rows)",
-                f"{change} in {imp.metric} (baseline {imp.baseline:.4g})", None)
+                f"{change} in {metric} (baseline {imp.baseline:.4g})",
+                "feature (most important first)")
             self._draw_groups(imp)
         if att is not None:
-            pos = {f: i for i, f in enumerate(att.features)}
-            mean_abs = np.abs(att.values).mean(axis=0)
-            values = np.array([mean_abs[pos[f]] if f in pos else np.nan for f in order])
-            _horizontal_bars(self.attribution_plot.plot, values,
-                             order if imp is None else [""] * len(order), colour(SECOND, 220))
+            mean_abs = np.abs(np.asarray(att.values, float)).mean(axis=0)
+            ranked = np.argsort(-mean_abs, kind="stable")
+            self.attribution_order = [att.features[i] for i in ranked]
+            _horizontal_bars(self.attribution_plot.plot, mean_abs[ranked], self.attribution_order,
+                             colour(SECOND, 220))
+            units = adapter.output_units if adapter else ""
             self.attribution_plot.set_text(
-                f"Mean absolute attribution ({att.method}, {att.n_rows:,} rows)",
-                f"mean |contribution| ({adapter.output_units if adapter else ''})", None)
-            if imp is None:
-                self.attribution_plot.plot.getAxis("left").setStyle(showValues=True)
+                f"Mean absolute attribution: average size of a feature's contribution "
+                f"({att.method}, {att.n_rows:,} rows)",
+                f"mean |contribution| ({units})", "feature (largest first)")
 
     def _draw_groups(self, imp) -> None:
         groups = list(getattr(imp, "groups", []) or [])
@@ -163,28 +165,32 @@ class RankingLevel(Level):
         self.group_values = [(g.mean, g.spread) for g in groups]
         _horizontal_bars(self.group_plot.plot, [g.mean for g in groups], labels, colour(CURVE, 160),
                          [g.spread for g in groups])
+        change = "drop" if imp.greater_is_better else "rise"
         self.group_plot.set_text("Blocks of associated features permuted together "
                                  "(their shared importance, which single permutations split)",
-                                 f"drop in {imp.metric}" if imp.greater_is_better else f"rise in {imp.metric}",
-                                 None)
+                                 f"{change} in {metric_label(imp.metric)} "
+                                 f"(baseline {imp.baseline:.4g})", "block")
 
     # ---- hover and clicks -------------------------------------------------------------------------
-    def _index(self, y: float) -> int | None:
+    @staticmethod
+    def _index(order: list[str], y: float) -> int | None:
         i = int(round(y))
-        return i if 0 <= i < len(self.order) else None
+        return i if 0 <= i < len(order) else None
 
-    def _hover(self, x: float, y: float) -> str | None:
-        i = self._index(y)
+    def _hover(self, order: list[str], y: float) -> str | None:
+        i = self._index(order, y)
         if i is None:
             return None
-        f = self.order[i]
+        f = order[i]
         parts = [f]
-        if self.importance is not None:
+        if self.importance is not None and f in list(self.importance.features):
             j = list(self.importance.features).index(f)
-            parts.append(f"importance {self.importance.mean[j]:.4g} ± {self.importance.spread[j]:.2g}")
+            parts.append(f"importance {self.importance.mean[j]:.4g} ± {self.importance.spread[j]:.2g} "
+                         f"(rank {self.order.index(f) + 1})")
         if self.attributions is not None and f in self.attributions.features:
             j = list(self.attributions.features).index(f)
-            parts.append(f"mean |attribution| {np.abs(self.attributions.values[:, j]).mean():.4g}")
+            parts.append(f"mean |attribution| {np.abs(self.attributions.values[:, j]).mean():.4g} "
+                         f"(rank {self.attribution_order.index(f) + 1})")
         return " · ".join(parts)
 
     def _hover_group(self, x: float, y: float) -> str | None:
@@ -197,12 +203,14 @@ class RankingLevel(Level):
 
     def _clicked(self, titled: TitledPlot, event) -> None:
         point = titled.plot.vb.mapSceneToView(event.scenePos())
-        self.click_bar_at(point.y())
+        self.click_bar_at(point.y(), panel="attribution" if titled is self.attribution_plot
+                          else "importance")
 
-    def click_bar_at(self, y: float) -> None:
-        i = self._index(y)
+    def click_bar_at(self, y: float, panel: str = "importance") -> None:
+        order = self.attribution_order if panel == "attribution" else self.order
+        i = self._index(order, y)
         if i is not None:
-            self.open_effect(self.order[i])
+            self.open_effect(order[i])
 
     def open_effect(self, feature: str) -> None:
         self.go(feature=feature, level="Effect")
