@@ -187,13 +187,10 @@ class VersionsLevel(Level):
         pick.addWidget(self.overlay_feature, 1)
         ob.addLayout(pick)
         ob.addWidget(self.overlay_plot, 1)
-        overview = QWidget()
-        og = QGridLayout(overview)
-        og.setContentsMargins(0, 0, 0, 0)
-        og.addWidget(self.scatter, 0, 0)
-        og.addWidget(self.shift_plot, 0, 1)
-        og.addWidget(overlay_box, 1, 0)
-        og.addWidget(self.lift_plot, 1, 1)
+        # Two plots per tab, one above the other: four side by side left each about 250 pixels
+        # at 1440 x 900, too narrow for the ranking shift's labels and the axes' titles.
+        scores_page = self._stacked(self.scatter, self.lift_plot)
+        features_page = self._stacked(self.shift_plot, overlay_box)
 
         self.case_heading = QLabel("No row chosen yet.")
         self.case_heading.setWordWrap(True)
@@ -223,8 +220,10 @@ class VersionsLevel(Level):
             bars.setStretchFactor(i, stretch)
         cl.addWidget(bars, 1)
         self.tabs = QTabWidget()
-        self.tabs.addTab(overview, "Overview")
+        self.tabs.addTab(scores_page, "Scores: agreement, double lift")
         self.tabs.addTab(case_page, "Chosen row under A and B")
+        self.tabs.addTab(features_page, "Features: ranking shift, effect overlay")
+        self.tabs.setUsesScrollButtons(True)
 
         split = QSplitter(Qt.Orientation.Horizontal)
         split.addWidget(left)
@@ -248,6 +247,14 @@ class VersionsLevel(Level):
         self.shift_features: list[str] = []
         self.overlay = None
         self.shown_points = np.arange(0)
+
+    @staticmethod
+    def _stacked(upper: QWidget, lower: QWidget) -> QWidget:
+        page = QSplitter(Qt.Orientation.Vertical)
+        page.addWidget(upper)
+        page.addWidget(lower)
+        page.setChildrenCollapsible(False)
+        return page
 
     # ---- what this level depends on ---------------------------------------------------------
     def view_key(self) -> tuple:
@@ -286,7 +293,10 @@ class VersionsLevel(Level):
         self.heading.setText(f"<b>Versions</b> — champion {names}")
         self.cell = None
         if a is None or b is None or ws.frame is None:
-            self._clear("Open model A, a second model B and a data file to compare them")
+            missing = [what for what, held in (("model A", a), ("a second model B", b),
+                                               ("a data file", ws.frame)) if held is None]
+            self._clear("To compare, open " + " and ".join(missing)
+                        + (" (File ▸ Open second model)" if b is None else ""))
             return
         y_all = ws.labels("A")
         if y_all is None:
