@@ -105,6 +105,11 @@ class SettingsPanel(QWidget):
         self.seed.setRange(0, 2**31 - 1)
         self.seed.setKeyboardTracking(False)
         form = QFormLayout(self)
+        # Labels above their fields: a narrow dock leaves the levels' plots room at 1440 x 900.
+        form.setRowWrapPolicy(QFormLayout.RowWrapPolicy.WrapAllRows)
+        for combo in (self.target, self.positive):
+            combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
+            combo.setMinimumContentsLength(14)
         form.addRow("Target (actual outcome)", self.target)
         form.addRow("Class of interest", self.positive)
         form.addRow("Cutoff (score scale)", self.cutoff)

@@ -162,6 +162,20 @@ class TitledPlot(QWidget):
             painter.end()
 
 
+def category_ticks(levels) -> list[tuple[int, str]]:
+    """Ticks for categories at 0, 1, ...: a label of several words goes on two lines, so that
+    neighbouring labels ("metro north", "metro south") do not run into each other."""
+    out = []
+    for i, value in enumerate(levels):
+        text = str(value)
+        words = text.split(" ")
+        if len(levels) > 3 and len(words) > 1 and len(text) > 8:
+            half = (len(words) + 1) // 2
+            text = " ".join(words[:half]) + "\n" + " ".join(words[half:])
+        out.append((i, text))
+    return out
+
+
 def thin_indices(n: int, limit: int = MAX_SCATTER_POINTS, seed: int = 0) -> np.ndarray:
     """All points up to ``limit``, else a seeded subset of ``limit`` of them."""
     if n <= limit:

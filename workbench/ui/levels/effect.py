@@ -15,6 +15,7 @@ from workbench.ui.plotting import (
     NEUTRAL,
     SECOND,
     TitledPlot,
+    category_ticks,
     colour,
     message_item,
     sequential_map,
@@ -191,7 +192,7 @@ class EffectLevel(Level):
 
     def _category_ticks(self, plot) -> None:
         if self.categorical and self.levels is not None:
-            plot.getAxis("bottom").setTicks([[(i, str(v)) for i, v in enumerate(self.levels)]])
+            plot.getAxis("bottom").setTicks([category_ticks(self.levels)])
         else:
             plot.getAxis("bottom").setTicks(None)
 

@@ -20,6 +20,7 @@ from PySide6.QtWidgets import (
 from workbench.ui.levels.base import Level, register_level
 from workbench.ui.plotting import (
     TitledPlot,
+    category_ticks,
     diverging_map,
     message_item,
     sequential_map,
@@ -59,8 +60,9 @@ class PairsLevel(Level):
         grid.addWidget(self.matrix_plot, 0, 0, 2, 1)
         grid.addWidget(self.map_plot, 0, 1)
         grid.addWidget(self.pair_scatter, 1, 1)
-        grid.setColumnStretch(0, 3)
-        grid.setColumnStretch(1, 2)
+        # The matrix is as wide as it is tall (square cells), so it gets the larger share.
+        grid.setColumnStretch(0, 4)
+        grid.setColumnStretch(1, 3)
         self.note = QLabel("Hover a cell for its value; click it to open the pair map and pair "
                            "scatter. Outlined: blocks of associated features (association ≥ 0.5).")
         self.note.setStyleSheet("color: #555;")
@@ -209,7 +211,7 @@ class PairsLevel(Level):
                 mark = QGraphicsRectItem(QRectF(b - 0.5, a - 0.5, 1, 1))
                 mark.setPen(pg.mkPen("#D55E00", width=2))
                 plot.addItem(mark)
-        plot.setXRange(-0.5, p - 0.5 + self.tree_width(p) + 0.6, padding=0.01)
+        plot.setXRange(-0.5, p - 0.5 + self.tree_width(p) + 0.4, padding=0.01)
         plot.setYRange(-0.5, p - 0.5, padding=0.01)
         if self.colorbar is not None:
             self.colorbar.setParentItem(None)
@@ -225,7 +227,7 @@ class PairsLevel(Level):
 
     @staticmethod
     def tree_width(p: int) -> float:
-        return max(p * 0.3, 2.0)
+        return max(p * 0.22, 1.5)
 
     def _draw_tree(self, plot, p: int) -> None:
         """The clustering tree to the right of the matrix, its leaves level with the rows."""
@@ -272,7 +274,7 @@ class PairsLevel(Level):
     # ---- pair map and pair scatter --------------------------------------------------------------------
     def _axis_positions(self, grid, kind: str) -> tuple[np.ndarray, list | None]:
         if kind == "categorical":
-            return np.arange(len(grid), dtype=float), [(i, str(v)) for i, v in enumerate(grid)]
+            return np.arange(len(grid), dtype=float), category_ticks(grid)
         return np.asarray(grid, float), None
 
     def _map_arrived(self, sampled) -> None:
@@ -358,4 +360,4 @@ class PairsLevel(Level):
         levels = sorted(map(str, pd.unique(series.dropna())))
         pos = np.array([levels.index(str(v)) if str(v) in levels else np.nan for v in values], float)
         pos = pos + np.random.default_rng(seed).uniform(-0.25, 0.25, len(pos))
-        return pos, [(i, v) for i, v in enumerate(levels)]
+        return pos, category_ticks(levels)
