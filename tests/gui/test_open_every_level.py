@@ -167,6 +167,7 @@ def test_motor_demo_every_level_with_exposure(window, motor_files):
 
     ranking = _visit(window, "Ranking")
     assert "Poisson deviance" in ranking.importance_plot.title
+    assert "weighted by exposure" in ranking.importance_plot.title and ranking.importance.exposure
     assert _left_ticks(ranking.attribution_plot) == ranking.attribution_order
     assert sorted(ranking.attribution_order) == sorted(adapter.input_columns)
 

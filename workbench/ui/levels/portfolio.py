@@ -37,10 +37,18 @@ PORTFOLIO_CAUTION = (
 
 
 def exposure_column(ctx) -> str | None:
-    """The column holding each row's exposure (time on risk), as chosen in the Portfolio."""
+    """The column holding each row's exposure (time on risk), as chosen in the Portfolio; until
+    the analyst chooses, for a count model the column whose name says exposure."""
     frame = ctx.workspace.frame
+    if frame is None:
+        return None
     chosen = getattr(ctx, "exposure_column", None)
-    return chosen if frame is not None and chosen in frame.columns else None
+    if chosen in frame.columns:
+        return chosen
+    if getattr(ctx, "exposure_declined", False):
+        return None
+    adapter = ctx.workspace.adapter("A")
+    return guess_exposure(frame, adapter.task if adapter is not None else None)
 
 
 def guess_exposure(frame: pd.DataFrame | None, task: str | None) -> str | None:
@@ -301,8 +309,6 @@ class PortfolioLevel(Level):
         if task != "count":
             return
         frame = ws.frame
-        if exposure_column(self.ctx) is None and not getattr(self.ctx, "exposure_declined", False):
-            self.ctx.exposure_column = guess_exposure(frame, task)
         numeric = [str(c) for c in frame.columns if pd.api.types.is_numeric_dtype(frame[c])
                    and c != ws.settings.target]
         self.exposure.blockSignals(True)

@@ -4,10 +4,12 @@ absolute attribution, and the importance of blocks of associated features permut
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pyqtgraph as pg
 from PySide6.QtWidgets import QHBoxLayout, QLabel, QVBoxLayout, QWidget
 
 from workbench.ui.levels.base import Level, register_level
+from workbench.ui.levels.portfolio import exposure_column
 from workbench.ui.plotting import CURVE, SECOND, TitledPlot, colour, message_item
 
 # The metrics' names as the trade writes them (the engine keeps short keys).
@@ -77,7 +79,7 @@ class RankingLevel(Level):
 
     def view_key(self) -> tuple:
         s = self.state
-        return (self.ctx.workspace.generation, s.model, s.segment)
+        return (self.ctx.workspace.generation, s.model, s.segment, exposure_column(self.ctx))
 
     def render(self) -> None:
         ws, s = self.ctx.workspace, self.state
@@ -103,16 +105,54 @@ class RankingLevel(Level):
     def _associations_arrived(self, result) -> None:
         _assoc, clustering = result
         self.groups = [list(b) for b in clustering.blocks]
-        self.ctx.results.importance(self.state.model, self.state, self.groups,
-                                    self._importance_arrived,
-                                    lambda e: (self._failed(self.importance_plot, e),
-                                               self._failed(self.group_plot, e)),
-                                    self.relevant())
+        self._request_importance(self.groups,
+                                 lambda e: (self._failed(self.importance_plot, e),
+                                            self._failed(self.group_plot, e)))
 
     def _associations_failed(self, exc) -> None:
         self._failed(self.group_plot, exc)
-        self.ctx.results.importance(self.state.model, self.state, [], self._importance_arrived,
-                                    lambda e: self._failed(self.importance_plot, e), self.relevant())
+        self._request_importance([], lambda e: self._failed(self.importance_plot, e))
+
+    def _request_importance(self, groups, on_error) -> None:
+        adapter = self.ctx.workspace.adapter(self.state.model)
+        column = exposure_column(self.ctx)
+        if adapter is not None and adapter.task == "count" and column is not None:
+            self._request_weighted_importance(groups, column, on_error)
+            return
+        self.ctx.results.importance(self.state.model, self.state, groups, self._importance_arrived,
+                                    on_error, self.relevant())
+
+    def _request_weighted_importance(self, groups, column: str, on_error) -> None:
+        """A frequency model: the deviance of observed frequencies weighted by the exposure
+        chosen in the Portfolio, as its summary figures are (engine ``exposure=``)."""
+        from workbench.engine.importance import permutation_importance
+        from workbench.ui import results as shared
+
+        ws, s, r = self.ctx.workspace, self.state, self.ctx.results
+        y_all = ws.labels(s.model)
+        if y_all is None:
+            on_error(shared.NotAvailable("Permutation importance needs the actual outcome: "
+                                         "choose the target in the settings"))
+            return
+        adapter = ws.adapter(s.model)
+        rows = r.sample_rows(s, shared.IMPORTANCE_ROWS)
+        exposure = pd.to_numeric(ws.frame[column], errors="coerce").to_numpy(float)
+        keep = y_all.iloc[rows].notna().to_numpy() & np.isfinite(exposure[rows]) & (exposure[rows] > 0)
+        rows = rows[keep]
+        frame, y, e = ws.frame.iloc[rows], y_all.iloc[rows], exposure[rows]
+        seed = ws.settings.seed
+        groups = [list(g) for g in groups] if groups else None
+
+        def work(progress, cancel):
+            return shared.Sampled(rows, permutation_importance(
+                adapter, frame, y, repeats=5, seed=seed, groups=groups, exposure=e,
+                progress=progress, cancel=cancel))
+
+        key = r.key("importance", s.model, s, rows=len(rows), seed=seed, exposure=column,
+                    groups=tuple(map(tuple, groups or ())), target=ws.settings.target)
+        self.ctx.runner.request(key, f"Permutation importance, weighted by {column} "
+                                f"(model {s.model})", work, self._importance_arrived,
+                                on_error=on_error, relevant=self.relevant())
 
     def _importance_arrived(self, sampled) -> None:
         self.importance = sampled.result
@@ -135,9 +175,10 @@ class RankingLevel(Level):
             _horizontal_bars(self.importance_plot.plot, means, self.order, colour(CURVE, 220), spreads)
             change = "drop" if imp.greater_is_better else "rise"
             metric = metric_label(imp.metric)
+            weighted = ", weighted by exposure" if getattr(imp, "exposure", False) else ""
             self.importance_plot.set_text(
                 f"Permutation importance: {change} in {metric} when a feature is shuffled "
-                f"({imp.repeats} repeats, {imp.rows_used:,} rows)",
+                f"({imp.repeats} repeats, {imp.rows_used:,} rows{weighted})",
                 f"{change} in {metric} (baseline {imp.baseline:.4g})",
                 "feature (most important first)")
             self._draw_groups(imp)
