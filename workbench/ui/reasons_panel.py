@@ -72,6 +72,7 @@ class CaseInputs:
     data_sha256: str = ""
     id_label: str | None = None
     id_value: object = None
+    response: float | None = None  # the case's score when already known (saves a model call)
 
 
 def _table(headers: list[str], stretch: int | None = None) -> QTableWidget:
@@ -349,7 +350,7 @@ class ReasonsPanel(QWidget):
             self.reasons = reason_statements(
                 case.attributions, case.values_row, adapter=case.adapter, cutoff=case.cutoff,
                 adverse_if=case.adverse_if, templates=case.templates, not_allowed=case.not_allowed,
-                on_request=True)
+                on_request=True, response=case.response)
         except InputError as exc:
             self.reasons = None
             self.message.setText(str(exc))
@@ -554,7 +555,9 @@ class ReasonsPanel(QWidget):
             return similar_rows(case.data, case.row, k=5, columns=columns, scores=scores,
                                 labels=case.labels, categorical=cats)
 
-        self._run(("similar rows", case.key, case.row), "Similar rows of one case", work,
+        # Similar rows are those of the row in the data, whatever its trial values: one job per
+        # row, not one per edit (case.key ends with the trial values' digest).
+        self._run(("similar rows", case.key[:-1], case.row), "Similar rows of one case", work,
                   self._show_similar)
 
     def _show_similar(self, result) -> None:
@@ -611,7 +614,8 @@ def show_for_case_level(panel: ReasonsPanel, level, attributions) -> None:
         model_name=slot.name, model_sha256=slot.sha256,
         data_name=ws.data.path.name if ws.data.path else "", data_sha256=ws.data.sha256,
         id_label=ws.data.id_column,
-        id_value=ws.frame[ws.data.id_column].iloc[state.row] if ws.data.id_column else None))
+        id_value=ws.frame[ws.data.id_column].iloc[state.row] if ws.data.id_column else None,
+        response=getattr(level, "trial_score", None)))
 
 
 def load_trial_values(table: QTableWidget, values: dict, *, value_column: int = 2) -> None:

@@ -20,6 +20,7 @@ from workbench.engine.jobs import rng, step
 from workbench.ui.focus import Focus, FocusState
 from workbench.ui.jobs import JobRunner
 from workbench.ui.segment import segment_rows
+from workbench.ui.threads import single_threaded
 from workbench.ui.workspace import Workspace
 
 SAMPLE_ROWS = 1000  # rows explained for the attribution scatter and mean |attribution|
@@ -181,7 +182,9 @@ class Results:
         opts = self._attribution_options()
 
         def work(progress, cancel):
-            return call_engine(explain, adapter, row_frame, progress=progress, cancel=cancel, **opts)
+            with single_threaded():  # one row: OpenMP threads cost more than they give
+                return call_engine(explain, adapter, row_frame, progress=progress, cancel=cancel,
+                                   **opts)
 
         s = self.workspace.settings
         key = self.key("case", slot, None, values=digest, bg=s.background_size, seed=s.seed)

@@ -37,6 +37,7 @@ from workbench.ui.reasons_panel import (
     show_for_case_level,
 )
 from workbench.ui.results import values_digest
+from workbench.ui.threads import single_threaded
 
 TOP_BARS = 12
 LABEL_CHARS = 30
@@ -306,11 +307,12 @@ class CaseLevel(Level):
         adapter = ws.adapter(state.model)
         frame = self.trial_frame()
         try:
-            if self.data_score is None:
-                self.data_score = float(adapter.response(self._original())[0])
-            output = float(adapter.score(frame)[0])
-            self.trial_score = float(adapter.response_from_output(np.array([output]))[0]) \
-                if adapter.output_kind != "raw score" else float(adapter.response(frame)[0])
+            with single_threaded():
+                if self.data_score is None:
+                    self.data_score = float(adapter.response(self._original())[0])
+                output = float(adapter.score(frame)[0])
+                self.trial_score = float(adapter.response_from_output(np.array([output]))[0]) \
+                    if adapter.output_kind != "raw score" else float(adapter.response(frame)[0])
         except Exception as exc:  # noqa: BLE001 - the model refusing trial values is the user's to see
             self.trial_score = None
             self.score_label.setText(f"The model could not score these values: {exc}")
