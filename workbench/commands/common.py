@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 import sys
@@ -11,8 +12,10 @@ import numpy as np
 import pandas as pd
 
 from workbench.engine.adapter import ModelAdapter
+from workbench.engine.effects import SCALES
 from workbench.engine.errors import InputError
 from workbench.engine.loading import Dataset, LoadedModel, load_data, load_model
+from workbench.engine.segments import describe_segment, parse_condition, segment_mask
 from workbench.engine.validation import has_errors, validate
 
 
@@ -34,6 +37,26 @@ def add_data_arguments(p, *, required: bool = True, target_required: bool = Fals
     p.add_argument("--target", required=target_required, help="the column holding the actual outcome")
     p.add_argument("--id-column", help="a column that identifies rows (kept, not scored)")
     p.add_argument("--class", dest="positive_class", help="class of interest for classifiers (default: the last class)")
+
+
+def add_segment(p) -> None:
+    p.add_argument(
+        "--segment",
+        action="append",
+        metavar="'COLUMN OP VALUE'",
+        help="only the rows where the condition holds, OP one of = != < <= > >= "
+        "(for example --segment 'region = North'); repeat it to require several",
+    )
+
+
+def add_scale(p) -> None:
+    p.add_argument(
+        "--scale",
+        choices=SCALES,
+        default="output",
+        help="output: the explained output (log-odds, log of the mean, value); "
+        "response: probability or predicted mean (default output)",
+    )
 
 
 def add_json(p) -> None:
@@ -60,7 +83,35 @@ def open_data(args, adapter: ModelAdapter | None = None, *, strict: bool = True)
             more = sum(f.level == "error" for f in findings) - 1
             extra = f" (and {more} more problem(s); see `workbench info`)" if more else ""
             raise InputError(f"{args.data}: {first.message}{extra}")
+    conditions = tuple(parse_condition(t) for t in getattr(args, "segment", None) or ())
+    if conditions:
+        data = in_segment(data, conditions)
     return data, findings
+
+
+def in_segment(data: Dataset, conditions) -> Dataset:
+    """The data cut to the segment's rows. The frame keeps the file's row positions as its index,
+    and ``read_options["segment"]`` says which rows these are (for the output)."""
+    mask = segment_mask(data.frame, conditions)
+    where = describe_segment(conditions)
+    if not mask.any():
+        raise InputError(f"the segment {where} holds no rows of {data.path}")
+    segment = {"where": where, "rows": int(mask.sum()), "of": data.n_rows}
+    return dataclasses.replace(data, frame=data.frame.loc[mask],
+                               read_options={**data.read_options, "segment": segment})
+
+
+def segment_of(data: Dataset) -> dict | None:
+    """``{"where", "rows", "of"}`` for data cut to a segment, None for all rows."""
+    return data.read_options.get("segment")
+
+
+def segment_line(data: Dataset) -> str:
+    """A line for the readable output: which rows were used."""
+    seg = segment_of(data)
+    if seg is None:
+        return f"all {data.n_rows} rows"
+    return f"segment {seg['where']}: {seg['rows']} of {seg['of']} rows"
 
 
 def to_plain(obj):

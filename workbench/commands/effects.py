@@ -6,15 +6,18 @@ from workbench.commands.common import (
     add_data_arguments,
     add_json,
     add_model_argument,
+    add_scale,
+    add_segment,
     add_trust,
     open_data,
     open_model,
     print_json,
     print_table,
+    segment_line,
+    segment_of,
 )
 from workbench.commands.rank import model_inputs
 from workbench.engine.effects import (
-    SCALES,
     accumulated_local_effects,
     partial_dependence,
 )
@@ -32,13 +35,8 @@ def register(sub) -> None:
     )
     p.add_argument("--ice-rows", type=int, default=200, help="ICE lines to keep (default 200)")
     p.add_argument("--bins", type=int, default=20, help="ALE bins (default 20)")
-    p.add_argument(
-        "--scale",
-        choices=SCALES,
-        default="output",
-        help="output: the explained output (log-odds, log of the mean...); "
-        "response: probability or predicted mean (default output)",
-    )
+    add_scale(p)
+    add_segment(p)
     p.add_argument("--seed", type=int, default=0, help="seed for the ICE rows (default 0)")
     add_trust(p)
     add_json(p)
@@ -75,7 +73,10 @@ def run(args) -> int:
         "grid": list(curve.grid),
         "pd": curve.pd,
         "ale": ale,
-        "ice": {"rows": curve.ice_rows, "values": curve.ice, "seed": curve.seed},
+        "segment": segment_of(data),
+        # ICE rows as positions in the data file (the segment keeps them as its index)
+        "ice": {"rows": data.frame.index.to_numpy()[curve.ice_rows], "values": curve.ice,
+                "seed": curve.seed},
         "distribution": {
             "counts": curve.counts,
             "edges": None if curve.edges is None else curve.edges,
@@ -85,8 +86,8 @@ def run(args) -> int:
         print_json(payload)
         return 0
     print(
-        f"effect curve of {curve.feature} ({curve.kind}), mean over {curve.rows_used} rows, "
-        f"in {curve.units}"
+        f"effect curve of {curve.feature} ({curve.kind}), mean over {curve.rows_used} rows "
+        f"({segment_line(data)}), in {curve.units}"
     )
     rows = [
         {"value": v if curve.kind == "categorical" else float(v), "partial dependence": float(p)}

@@ -10,15 +10,34 @@ from workbench.commands.common import (
     add_data_arguments,
     add_json,
     add_model_argument,
+    add_scale,
+    add_segment,
     add_trust,
     open_data,
     open_model,
     print_json,
     print_table,
+    segment_line,
+    segment_of,
 )
 from workbench.commands.rank import association_blocks, model_inputs
-from workbench.engine.effects import SCALES
+from workbench.engine.errors import InputError
 from workbench.engine.interactions import h_statistics
+
+H_BACKGROUND = 100  # rows each partial dependence is averaged over, by default
+
+
+def background_rows(text: str) -> int | None:
+    """--background as h_statistics takes it: a number of rows, or None for the whole sample."""
+    if str(text).strip().lower() == "all":
+        return None
+    try:
+        rows = int(text)
+    except ValueError:
+        raise InputError(f"--background must be a whole number of rows or 'all', not {text!r}") from None
+    if rows < 2:
+        raise InputError(f"--background needs at least 2 rows, not {rows}")
+    return rows
 
 
 def register(sub) -> None:
@@ -38,12 +57,14 @@ def register(sub) -> None:
     )
     p.add_argument(
         "--background",
-        type=int,
-        help="average each partial dependence over this many sample rows instead of all "
-        "(faster, a Monte Carlo estimate; default: all)",
+        default=str(H_BACKGROUND),
+        help="average each partial dependence over this many of the sample rows, a Monte Carlo "
+        "estimate of the same functions at about half the model calls; 'all' averages over "
+        f"the whole sample, as Friedman and Popescu do (default {H_BACKGROUND})",
     )
     p.add_argument("--seed", type=int, default=0, help="seed for the row sample (default 0)")
-    p.add_argument("--scale", choices=SCALES, default="output", help="model scale (default output)")
+    add_scale(p)
+    add_segment(p)
     p.add_argument(
         "--block-threshold",
         type=float,
@@ -66,7 +87,7 @@ def run(args) -> int:
         screen=args.screen,
         seed=args.seed,
         scale=args.scale,
-        background=args.background,
+        background=background_rows(args.background),
     )
     assoc, clusters = association_blocks(adapter, x, args.block_threshold)
     payload = {
@@ -81,6 +102,7 @@ def run(args) -> int:
         "seed": res.seed,
         "background": res.background,
         "scale": res.scale,
+        "segment": segment_of(data),
         "units": res.units,
         "screened": res.screened,
         "h_overall": dict(zip(res.features, res.h_overall, strict=True)),
@@ -93,7 +115,8 @@ def run(args) -> int:
         print_json(payload)
         return 0
     print(
-        f"Friedman's H-statistic on {res.sample} rows (seed {res.seed}), {res.units}; "
+        f"Friedman's H-statistic on a sample of {res.sample} rows (seed {res.seed}; "
+        f"{segment_line(data)}), {res.units}; "
         f"pairs among the {len(res.screened)} strongest columns"
     )
     print_table(

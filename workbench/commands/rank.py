@@ -6,11 +6,14 @@ from workbench.commands.common import (
     add_data_arguments,
     add_json,
     add_model_argument,
+    add_segment,
     add_trust,
     open_data,
     open_model,
     print_json,
     print_table,
+    segment_line,
+    segment_of,
 )
 from workbench.engine.associations import associations, cluster_order
 from workbench.engine.effects import model_frame
@@ -44,6 +47,7 @@ def register(sub) -> None:
     )
     p.add_argument("--exposure", help="count models: column holding the exposure")
     p.add_argument("--max-rows", type=int, help="score a sample of this many rows")
+    add_segment(p)
     add_trust(p)
     add_json(p)
     p.set_defaults(run=run)
@@ -103,6 +107,7 @@ def run(args) -> int:
         "seed": result.seed,
         "rows": result.rows_used,
         "rows_without_target": dropped,
+        "segment": segment_of(data),
         "features": [
             {
                 "feature": result.features[i],
@@ -121,7 +126,8 @@ def run(args) -> int:
         return 0
     print(
         f"permutation importance: worsening of {result.metric} when a column is shuffled "
-        f"({result.repeats} repeats, seed {result.seed}, {result.rows_used} rows)"
+        f"({result.repeats} repeats, seed {result.seed}, {result.rows_used} rows; "
+        f"{segment_line(data)})"
     )
     print(
         f"{result.metric} on the data as it is: {result.baseline:.4g}"

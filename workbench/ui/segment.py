@@ -1,74 +1,10 @@
-"""Segments: rows picked by column conditions (several ANDed). Plain pandas, no Qt."""
+"""The window's segments are the engine's (workbench.engine.segments); this name stays for the
+level modules that import it."""
 
-from __future__ import annotations
-
-import operator
-from dataclasses import dataclass
-
-import numpy as np
-import pandas as pd
-
-from workbench.engine.errors import InputError
-
-OPERATORS = {
-    "=": operator.eq,
-    "≠": operator.ne,
-    "<": operator.lt,
-    "≤": operator.le,
-    ">": operator.gt,
-    "≥": operator.ge,
-}
-
-
-@dataclass(frozen=True)
-class Condition:
-    """One condition ``column operator value``; ``value`` is kept as the user typed it."""
-
-    column: str
-    op: str
-    value: str
-
-    def describe(self) -> str:
-        return f"{self.column} {self.op} {self.value}"
-
-
-def _typed_value(series: pd.Series, condition: Condition):
-    if pd.api.types.is_numeric_dtype(series) and not pd.api.types.is_bool_dtype(series):
-        try:
-            return float(condition.value)
-        except ValueError:
-            raise InputError(
-                f"segment: column '{condition.column}' holds numbers; "
-                f"{condition.value!r} is not a number"
-            ) from None
-    if condition.op not in ("=", "≠"):
-        raise InputError(
-            f"segment: column '{condition.column}' holds text; use = or ≠, not {condition.op}"
-        )
-    return condition.value
-
-
-def segment_mask(frame: pd.DataFrame, conditions: tuple[Condition, ...]) -> np.ndarray:
-    """True for the rows meeting every condition (missing values meet none)."""
-    mask = np.ones(len(frame), dtype=bool)
-    for cond in conditions:
-        if cond.column not in frame.columns:
-            raise InputError(f"segment: the data has no column '{cond.column}'")
-        if cond.op not in OPERATORS:
-            raise InputError(f"segment: unknown operator {cond.op!r}")
-        series = frame[cond.column]
-        value = _typed_value(series, cond)
-        if isinstance(value, str):
-            series = series.astype(str).where(series.notna())
-        hit = OPERATORS[cond.op](series, value)
-        mask &= np.asarray(hit.fillna(False), dtype=bool) & series.notna().to_numpy()
-    return mask
-
-
-def segment_rows(frame: pd.DataFrame, conditions: tuple[Condition, ...]) -> np.ndarray:
-    """Positions (0-based) of the rows in the segment."""
-    return np.flatnonzero(segment_mask(frame, conditions))
-
-
-def describe_segment(conditions: tuple[Condition, ...]) -> str:
-    return " and ".join(c.describe() for c in conditions) if conditions else "all rows"
+from workbench.engine.segments import (  # noqa: F401
+    OPERATORS,
+    Condition,
+    describe_segment,
+    segment_mask,
+    segment_rows,
+)
