@@ -106,20 +106,37 @@ def open_files(window, *, model: Path | None = None, data: Path | None = None,
     focus.reset(focus.state)
 
 
-def snapshot(window, directory: Path, *, timeout_s: float = 300.0) -> list[Path]:
-    """Visit every level, wait for its jobs, and save a PNG of the window for each."""
+def snapshot(window, directory: Path, *, timeout_s: float = 300.0,
+             every_tab: bool = False) -> list[Path]:
+    """Visit every level, wait for its jobs, and save a PNG of the window for each.
+
+    ``every_tab``: levels with tabs (``level.tabs``) also get one PNG per further tab,
+    ``<i>_<level>_<tab>.png``, so that what the first tab hides can be looked at too.
+    """
     directory = Path(directory)
     directory.mkdir(parents=True, exist_ok=True)
     out = []
+
+    def settle():
+        for _ in range(2):
+            window.ctx.runner.wait_idle(timeout_s)
+            application().processEvents()
+
     for i, name in enumerate(window.levels, start=1):
         window.show_level(name)
-        window.ctx.runner.wait_idle(timeout_s)
-        application().processEvents()
-        window.ctx.runner.wait_idle(timeout_s)
-        application().processEvents()
+        settle()
         path = directory / f"{i}_{name.lower()}.png"
         window.grab().save(str(path))
         out.append(path)
+        tabs = getattr(window.levels[name], "tabs", None)
+        if every_tab and tabs is not None:
+            for k in range(1, tabs.count()):
+                tabs.setCurrentIndex(k)
+                settle()
+                extra = directory / f"{i}_{name.lower()}_{k + 1}.png"
+                window.grab().save(str(extra))
+                out.append(extra)
+            tabs.setCurrentIndex(0)
     return out
 
 

@@ -34,6 +34,13 @@ KINDS = {
     "association": "Feature association (signed)",
 }
 
+SCALE_LABELS = {
+    "h": "Friedman's H of the pair (0: no interaction)",
+    "shap": "mean |SHAP interaction value| ({units})",
+    "association": "association: −1 opposite, 0 none, +1 together",
+}
+NOT_COMPUTED = "#D9D9D9"
+
 
 @register_level
 class PairsLevel(Level):
@@ -61,7 +68,7 @@ class PairsLevel(Level):
         grid.addWidget(self.map_plot, 0, 1)
         grid.addWidget(self.pair_scatter, 1, 1)
         # The matrix is as wide as it is tall (square cells), so it gets the larger share.
-        grid.setColumnStretch(0, 4)
+        grid.setColumnStretch(0, 5)
         grid.setColumnStretch(1, 3)
         self.note = QLabel("Hover a cell for its value; click it to open the pair map and pair "
                            "scatter. Outlined: blocks of associated features (association ≥ 0.5).")
@@ -188,6 +195,13 @@ class PairsLevel(Level):
         shown = np.where(np.isfinite(matrix), matrix, np.nan)
         if not signed:
             np.fill_diagonal(shown, np.nan)
+        # Grey under the image: cells left out (the diagonal, pairs not screened for H) read
+        # as "not computed" rather than as a pale value.
+        backdrop = QGraphicsRectItem(QRectF(-0.5, -0.5, p, p))
+        backdrop.setBrush(pg.mkBrush(NOT_COMPUTED))
+        backdrop.setPen(pg.mkPen(None))
+        backdrop.setZValue(-1)
+        plot.addItem(backdrop)
         image = pg.ImageItem(shown.T, axisOrder="col-major")
         image.setLookupTable(cmap.getLookupTable(nPts=256))
         image.setLevels(levels)
@@ -214,16 +228,25 @@ class PairsLevel(Level):
         plot.setXRange(-0.5, p - 0.5 + self.tree_width(p) + 0.4, padding=0.01)
         plot.setYRange(-0.5, p - 0.5, padding=0.01)
         if self.colorbar is not None:
+            plot.layout.removeItem(self.colorbar)
             self.colorbar.setParentItem(None)
             self.matrix_plot.plot_widget.scene().removeItem(self.colorbar)
-        self.colorbar = pg.ColorBarItem(values=levels, colorMap=cmap, interactive=False, width=12)
+        # Under the matrix, not beside it: the matrix is short of width, not of height.
+        self.colorbar = pg.ColorBarItem(values=levels, colorMap=cmap, interactive=False, width=12,
+                                        orientation="horizontal", label=self._scale_label(kind))
+        self.colorbar.axis.enableAutoSIPrefix(False)  # values as they are, no "(x0.001)"
         self.colorbar.setImageItem(image, insert_in=plot)
         scale = "signed: −1 … +1, diverging scale" if signed else "strength, sequential scale"
         extra = ""
         if kind == "h" and self.h is not None:
             extra = f"; pairs computed among the {len(self.h.screened)} strongest ({self.h.sample} rows)"
-        self.matrix_plot.set_text(f"{KINDS[kind]} — {scale}{extra}; at the right the clustering "
-                                  "tree of the association (dashed: the block cut)", "", "")
+        self.matrix_plot.set_text(f"{KINDS[kind]} — {scale}{extra}; grey: not computed; at the "
+                                  "right the clustering tree of the association (dashed: the "
+                                  "block cut)", "", "")
+
+    def _scale_label(self, kind: str) -> str:
+        adapter = self.ctx.workspace.adapter(self.state.model)
+        return SCALE_LABELS[kind].format(units=adapter.output_units if adapter else "model output")
 
     @staticmethod
     def tree_width(p: int) -> float:

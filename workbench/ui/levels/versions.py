@@ -220,9 +220,9 @@ class VersionsLevel(Level):
             bars.setStretchFactor(i, stretch)
         cl.addWidget(bars, 1)
         self.tabs = QTabWidget()
-        self.tabs.addTab(scores_page, "Scores: agreement, double lift")
+        self.tabs.addTab(scores_page, "Scores and lift")
         self.tabs.addTab(case_page, "Chosen row under A and B")
-        self.tabs.addTab(features_page, "Features: ranking shift, effect overlay")
+        self.tabs.addTab(features_page, "Ranking and effects")
         self.tabs.setUsesScrollButtons(True)
 
         split = QSplitter(Qt.Orientation.Horizontal)
