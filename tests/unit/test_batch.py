@@ -361,6 +361,48 @@ def test_two_workers_on_loopback_give_the_one_process_output(files, tree_adapter
     pd.testing.assert_frame_equal(read(summary.output), one, check_exact=True)
 
 
+def test_piece_bounds_cover_the_chunk_in_order_with_about_two_pieces_per_worker():
+    from workbench.engine.batch.executors import MIN_PIECE_ROWS, piece_bounds
+
+    assert piece_bounds(20_000, 2) == [(0, 5_000), (5_000, 10_000), (10_000, 15_000),
+                                       (15_000, 20_000)]
+    assert piece_bounds(MIN_PIECE_ROWS - 1, 8) == [(0, MIN_PIECE_ROWS - 1)]  # too few to cut
+    assert piece_bounds(3 * MIN_PIECE_ROWS, 8) == [(0, MIN_PIECE_ROWS),
+                                                   (MIN_PIECE_ROWS, 2 * MIN_PIECE_ROWS),
+                                                   (2 * MIN_PIECE_ROWS, 3 * MIN_PIECE_ROWS)]
+    bounds = piece_bounds(10_001, 3)
+    assert bounds[0][0] == 0 and bounds[-1][1] == 10_001 and len(bounds) == 5
+    assert all(a[1] == b[0] for a, b in zip(bounds[:-1], bounds[1:], strict=True))
+
+
+def test_chunks_cut_into_pieces_on_two_workers_give_the_one_process_output_and_rejects(
+        files, linear_adapter, cluster, tmp_path, monkeypatch):
+    from workbench.engine.batch import executors
+
+    df = files["frame"].copy()
+    df["income"] = df["income"].astype(object)
+    df.loc[[7, 451], "income"] = "n/a"
+    df.loc[[299, 300, 1_203], "region"] = "atlantis"
+    df.to_csv(tmp_path / "bad.csv", index=False)
+    options = {"chunk_rows": 400, "reasons": 2, "cutoff": 0.5}
+    one = batch(linear_adapter, tmp_path / "bad.csv", tmp_path / "one.parquet", **options)
+    monkeypatch.setattr(executors, "MIN_PIECE_ROWS", 90)  # 4 pieces of each 400-row chunk
+    sent = []
+    real_submit = executors.DaskCluster.submit
+
+    def counting_submit(self, job):
+        sent.append(len(executors.piece_bounds(len(job.frame), self._n_workers)))
+        return real_submit(self, job)
+
+    monkeypatch.setattr(executors.DaskCluster, "submit", counting_submit)
+    two = batch(linear_adapter, tmp_path / "bad.csv", tmp_path / "two.parquet",
+                scheduler=cluster.scheduler_address, **options)
+    assert sent == [4, 4, 4, 3] and two.processes_used == 2
+    pd.testing.assert_frame_equal(read(two.output), read(one.output), check_exact=True)
+    assert pd.read_csv(two.rejects).equals(pd.read_csv(one.rejects))
+    assert pd.read_csv(two.rejects)["row"].tolist() == [7, 299, 300, 451, 1_203]
+
+
 # ---- refusals and progress ---------------------------------------------------------------------
 def test_refusals_name_the_problem(files, linear_adapter, tmp_path):
     with pytest.raises(InputError, match="ID column: nope"):

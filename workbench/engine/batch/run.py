@@ -27,7 +27,6 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
-import pyarrow as pa
 
 from workbench.engine import jobs
 from workbench.engine.attributions import explain
@@ -189,10 +188,11 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
     schema = output_schema(adapter, settings, reader.id_type())
     rejected_schema = reject_schema(settings, reader.id_type())
 
+    schemas = (schema, rejected_schema)
     if workers is None and scheduler is None:
-        executor = InProcess(adapter, background, settings)
+        executor = InProcess(adapter, background, settings, schemas)
     else:
-        executor = DaskCluster(adapter, background, settings, workers=workers,
+        executor = DaskCluster(adapter, background, settings, schemas, workers=workers,
                                scheduler=scheduler, on_start=lambda name: say(f"running on {name}"))
     total_read = 0
     written_now = 0
@@ -215,13 +215,11 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
 
     with executor:
         for result in run_chunks(executor, todo()):
-            work.add_part(result.index, result.start, result.start + len(result.rows) + len(result.rejects),
-                          pa.Table.from_pandas(result.rows, schema=schema, preserve_index=False),
-                          pa.Table.from_pandas(result.rejects, schema=rejected_schema,
-                                               preserve_index=False), result.notes)
+            work.add_part(result.index, result.start, result.start + result.rows_seen,
+                          result.rows, result.rejects, result.notes)
             chunk_notes.extend(n for n in result.notes if n not in chunk_notes)
             written_now += 1
-            processes.add(result.worker)
+            processes.update(result.workers)
             cpu_seconds += result.cpu_seconds
             if watch is not None:
                 watch(_status(reader, work, total_read, resumed_rows,

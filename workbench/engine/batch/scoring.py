@@ -148,20 +148,48 @@ class ChunkJob:
 
 @dataclass(frozen=True)
 class ChunkResult:
+    """The finished rows of a chunk (or of a piece of one) as Arrow tables in the output's
+    schema, built where the rows were explained, so the main process only appends them."""
+
     index: int
     start: int
-    rows: pd.DataFrame
-    rejects: pd.DataFrame
+    rows: pa.Table
+    rejects: pa.Table
     notes: tuple[str, ...] = ()
-    worker: str = ""  # host:pid of the process that explained the chunk
-    cpu_seconds: float = 0.0  # processor time that process spent on the chunk
+    workers: tuple[str, ...] = ()  # host:pid of the processes that explained the rows
+    cpu_seconds: float = 0.0  # processor time those processes spent on them
+
+    @property
+    def rows_seen(self) -> int:
+        return self.rows.num_rows + self.rejects.num_rows
 
 
-def explain_chunk(job: ChunkJob, adapter, background: pd.DataFrame,
-                  settings: BatchSettings) -> ChunkResult:
-    """Attributions (and reasons) of the rows of one chunk; rejects for those that fail."""
-    if job.one_thread:
-        _one_thread()
+def join_results(index: int, start: int, pieces: list[ChunkResult]) -> ChunkResult:
+    """One chunk's result from the results of its consecutive pieces (in row order)."""
+    pieces = sorted(pieces, key=lambda r: r.start)
+    return ChunkResult(index, start, pa.concat_tables([r.rows for r in pieces]),
+                       pa.concat_tables([r.rejects for r in pieces]),
+                       tuple(dict.fromkeys(n for r in pieces for n in r.notes)),
+                       tuple(dict.fromkeys(w for r in pieces for w in r.workers)),
+                       sum(r.cpu_seconds for r in pieces))
+
+
+def explain_chunk(job: ChunkJob, adapter, background: pd.DataFrame, settings: BatchSettings,
+                  schemas: tuple[pa.Schema, pa.Schema]) -> ChunkResult:
+    """Attributions (and reasons) of the rows of one chunk, as tables in ``schemas`` (rows,
+    rejects); rejects for the rows that fail. ``job.one_thread``: keep numba, OpenMP and BLAS
+    to one thread (a worker process sharing the cores with other workers)."""
+    if not job.one_thread:
+        return _explain_chunk(job, adapter, background, settings, schemas)
+    _one_thread()
+    from threadpoolctl import threadpool_limits
+
+    # HistGradientBoosting's predict (OpenMP) and BLAS would otherwise start a thread per core
+    with threadpool_limits(limits=1):
+        return _explain_chunk(job, adapter, background, settings, schemas)
+
+
+def _explain_chunk(job, adapter, background, settings, schemas) -> ChunkResult:
     cpu_started = time.process_time()
     frame, problems = parse_numbers(adapter, job.frame)
     rows = frame[adapter.input_columns]
@@ -186,9 +214,14 @@ def explain_chunk(job: ChunkJob, adapter, background: pd.DataFrame,
             result = attribute(rows.iloc[good]) if len(good) else None
     if result is not None:
         notes = result.notes
-    table = _row_table(adapter, settings, job, frame, rows, good, result)
-    return ChunkResult(job.index, job.start, table, _reject_table(settings, job, problems), notes,
-                       f"{socket.gethostname()}:{os.getpid()}", time.process_time() - cpu_started)
+    row_schema, rejected_schema = schemas
+    table = pa.Table.from_pandas(_row_table(adapter, settings, job, frame, rows, good, result),
+                                 schema=row_schema, preserve_index=False)
+    rejects = pa.Table.from_pandas(_reject_table(settings, job, problems),
+                                   schema=rejected_schema, preserve_index=False)
+    return ChunkResult(job.index, job.start, table, rejects, notes,
+                       (f"{socket.gethostname()}:{os.getpid()}",),
+                       time.process_time() - cpu_started)
 
 
 def _one_thread() -> None:
