@@ -69,7 +69,8 @@ def test_pairs_on_a_segment(cli_files):
 @pytest.mark.parametrize(
     ("command", "segment", "message"),
     [
-        ("rank", "region = east", "holds no rows"),
+        ("rank", "income > 1e9", "holds no rows"),
+        ("rank", "region != North", "has no value 'North' (its values: north, south, west)"),
         ("rank", "colour = red", "no column 'colour'"),
         ("effects", "income > lots", "holds numbers"),
         ("pairs", "region", "not a condition"),

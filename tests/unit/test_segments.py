@@ -67,3 +67,9 @@ def test_conditions_are_anded_and_missing_values_meet_none(frame):
 def test_bad_conditions_say_what_is_wrong(frame, text, message):
     with pytest.raises(InputError, match=message):
         segment_mask(frame, (parse_condition(text),))
+
+
+def test_a_text_value_the_column_never_takes_is_refused(frame):
+    """'region ≠ North' on a column holding 'north' would silently keep every row."""
+    with pytest.raises(InputError, match=r"no value 'North' \(its values: north, south, west\)"):
+        segment_mask(frame, (parse_condition("region != North"),))

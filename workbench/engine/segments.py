@@ -57,6 +57,20 @@ def _typed_value(series: pd.Series, condition: Condition):
     return condition.value
 
 
+def _check_level(series: pd.Series, condition: Condition) -> None:
+    """A text value the column never takes is a slip (a wrong case, say), not a wish: "= x"
+    would pick nothing and "≠ x" everything, without a word."""
+    levels = series.dropna().unique()
+    if condition.value in set(levels):
+        return
+    shown = sorted(map(str, levels))
+    listed = ", ".join(shown[:12]) + (f" and {len(shown) - 12} more" if len(shown) > 12 else "")
+    raise InputError(
+        f"segment: column '{condition.column}' has no value {condition.value!r} "
+        f"(its values: {listed})"
+    )
+
+
 def segment_mask(frame: pd.DataFrame, conditions: tuple[Condition, ...]) -> np.ndarray:
     """True for the rows meeting every condition (missing values meet none)."""
     mask = np.ones(len(frame), dtype=bool)
@@ -69,6 +83,7 @@ def segment_mask(frame: pd.DataFrame, conditions: tuple[Condition, ...]) -> np.n
         value = _typed_value(series, cond)
         if isinstance(value, str):
             series = series.astype(str).where(series.notna())
+            _check_level(series, cond)
         hit = OPERATORS[cond.op](series, value)
         mask &= np.asarray(hit.fillna(False), dtype=bool) & series.notna().to_numpy()
     return mask
