@@ -1,5 +1,9 @@
 """``workbench audit MODEL DATA --target COL``: run the audit checks, headless.
 
+The checks whose method allows it work on seeded samples (permutation importance on
+``--sample`` rows, ICE lines and attributions on the smaller samples of the thresholds); the
+others use every row. The output says which checks sampled, "sampled N of M rows, seed S".
+
 Exit codes: 0 when the checks ran (whatever their statuses), 3 when ``--fail-on`` is given and
 a check reached that status ("checks failed"), 2 for bad input, 1 for a bug.
 """
@@ -18,6 +22,7 @@ from workbench.commands.common import (
     print_json,
     print_table,
 )
+from workbench.commands.large_data import checks_sampled
 from workbench.engine.checks import DIRECTIONS, parse_direction, run_checks, summarise
 from workbench.engine.checks.result import at_least
 from workbench.engine.errors import InputError
@@ -42,7 +47,8 @@ def register(sub) -> None:
                    help="the adverse decision is a response at/above (default) or below the cutoff")
     p.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
     p.add_argument("--sample", type=int, default=2000,
-                   help="rows used by permutation importance (default 2000)")
+                   help="rows used by permutation importance in the leakage check (default "
+                        "2000); the output says which checks sampled and how many rows")
     p.add_argument("--project", type=Path, help="also save a project file (.wbench) with the "
                                                 "inputs, settings, results and audit trail")
     p.add_argument("--fail-on", choices=("warn", "fail"),
@@ -81,6 +87,7 @@ def run(args) -> int:
                          adverse_if=args.adverse_if, seed=args.seed, sample=args.sample,
                          ids=data.ids)
     summary = summarise(results)
+    sampled = checks_sampled(results)
     if args.project is not None:
         save_audit_project(args, loaded, data, reference, expectations, results)
     payload = {"model": str(loaded.path), "model_sha256": loaded.sha256,
@@ -88,6 +95,8 @@ def run(args) -> int:
                "reference": None if reference is None else str(reference.path),
                "reference_sha256": None if reference is None else reference.sha256,
                "summary": summary,
+               "rows_in_data": int(len(data.frame)),
+               "sampling": [s.as_dict() for s in sampled],
                "checks": [{k: r.as_dict()[k] for k in ("id", "title", "status", "summary",
                                                        "evidence", "parameters", "caution")}
                           for r in results]}
@@ -98,6 +107,10 @@ def run(args) -> int:
                      for r in results])
         counts = summary["counts"]
         print(f"\n{counts['pass']} passed, {counts['warn']} warned, {counts['fail']} failed")
+        for s in sampled:
+            print(f"{s.what}: {s.line()}")
+        others = "the other checks" if sampled else "the checks"
+        print(f"{others} used all {len(data.frame):,} rows")
         cautions = {r.caution for r in results if r.caution}
         for text in cautions:
             print(f"Note: {text}")

@@ -15,11 +15,14 @@ from workbench.commands.common import (
     segment_line,
     segment_of,
 )
+from workbench.commands.large_data import add_sample_option, take_sample
 from workbench.engine.associations import associations, cluster_order
 from workbench.engine.effects import model_frame
 from workbench.engine.errors import InputError
 from workbench.engine.importance import permutation_importance
 from workbench.engine.metrics import default_metric
+
+DEFAULT_SAMPLE = 50_000  # shuffling every column several times scores the rows many times
 
 
 def register(sub) -> None:
@@ -46,7 +49,7 @@ def register(sub) -> None:
         help="association strength that joins columns into a block (default 0.5)",
     )
     p.add_argument("--exposure", help="count models: column holding the exposure")
-    p.add_argument("--max-rows", type=int, help="score a sample of this many rows")
+    add_sample_option(p, DEFAULT_SAMPLE, "rows ranked (importance and blocks)", "--max-rows")
     add_segment(p)
     add_trust(p)
     add_json(p)
@@ -75,6 +78,7 @@ def run(args) -> int:
     dropped = int((~present).sum())
     if dropped:
         frame = frame.loc[present]
+    frame, sampled = take_sample(frame, args.sample, args.seed)  # one sample for everything
     exposure = None
     if args.exposure is not None:
         if args.exposure not in frame.columns:
@@ -93,7 +97,6 @@ def run(args) -> int:
         seed=args.seed,
         groups=blocks,
         exposure=exposure,
-        max_rows=args.max_rows,
     )
     payload = {
         "model": str(loaded.path),
@@ -107,6 +110,7 @@ def run(args) -> int:
         "seed": result.seed,
         "rows": result.rows_used,
         "rows_without_target": dropped,
+        "sample": sampled.as_dict(),
         "segment": segment_of(data),
         "features": [
             {
@@ -127,7 +131,7 @@ def run(args) -> int:
     print(
         f"permutation importance: worsening of {result.metric} when a column is shuffled "
         f"({result.repeats} repeats, seed {result.seed}, {result.rows_used} rows; "
-        f"{segment_line(data)})"
+        f"{segment_line(data)}; {sampled.line()})"
     )
     print(
         f"{result.metric} on the data as it is: {result.baseline:.4g}"
