@@ -2,8 +2,11 @@
 16 inputs) over a large invented lending book.
 
 Run: python tests/benchmarks/bench_batch.py [--rows N] [--background K] [--chunk-rows C]
-(default 1,000,000 rows; the file holds the lending book's 20 columns). It measures, each run in
-a fresh child process (a Dask LocalCluster on 127.0.0.1 started by the command):
+[--repeat R] (default 1,000,000 rows; the file holds the lending book's 20 columns). It
+measures, each run in a fresh child process (a Dask LocalCluster on 127.0.0.1 started by the
+command), R rounds of (one worker on N rows, two workers on N rows, two workers on 2N rows),
+interleaved so that a change in the machine's load hits every kind of run alike, and reports
+each figure as min / median / max over the rounds with the load average around each run:
 
 * rows per second while explaining (from the first chunk sent to the last part written, so the
   fixed costs of starting workers, drawing the background and assembling are left out) with
@@ -26,6 +29,8 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
+import statistics
 import subprocess
 import sys
 import tempfile
@@ -69,10 +74,15 @@ print(len(frame) / (time.perf_counter() - t))
 """
 
 
+def load() -> str:
+    return " ".join(f"{x:.2f}" for x in os.getloadavg())
+
+
 def run_batch(model: Path, data: Path, out: Path, workers: int, args) -> dict:
     cmd = [sys.executable, "-c", CHILD, "batch", str(model), str(data), "-o", str(out),
            "--trust", "--json", "--workers", str(workers), "--background", str(args.background),
            "--chunk-rows", str(args.chunk_rows), "--id-column", "application_id"]
+    load_before = load()
     t = time.perf_counter()
     proc = subprocess.run(cmd, capture_output=True, text=True)
     wall = time.perf_counter() - t
@@ -84,7 +94,8 @@ def run_batch(model: Path, data: Path, out: Path, workers: int, args) -> dict:
     return {"rows": summary["rows_written"], "seconds": summary["seconds"], "wall": wall,
             "explaining": summary["seconds_explaining"], "processes": summary["processes_used"],
             "cpu": summary["cpu_seconds"], "main_cpu": own["cpu"],
-            "rate": summary["rows_written"] / summary["seconds_explaining"], "peak_mib": peak}
+            "rate": summary["rows_written"] / summary["seconds_explaining"], "peak_mib": peak,
+            "load": f"{load_before} -> {load()}"}
 
 
 BASELINE = """
@@ -141,7 +152,11 @@ def main() -> None:
     parser.add_argument("--memory-rows", type=int, default=1_000_000,
                         help="rows of the in-process memory check (0: skip it)")
     parser.add_argument("--skip-workers", action="store_true", help="only the memory check")
+    parser.add_argument("--repeat", type=int, default=1,
+                        help="rounds of (1 worker N, 2 workers N, 2 workers 2N), interleaved")
     args = parser.parse_args()
+    sys.stdout.reconfigure(line_buffering=True)  # a redirected log shows each run as it ends
+    print(f"load average (1, 5, 15 min) at the start: {load()}; {os.cpu_count()} processors")
     from demo_models.write import ensure_demo
 
     model = ensure_demo()["lending_challenger"]
@@ -159,25 +174,59 @@ def main() -> None:
         reference = float(subprocess.check_output(
             [sys.executable, "-c", REFERENCE, str(model), str(small), str(args.background)]))
         print(f"reference: explain() in one process, one thread: {reference:,.0f} rows/s")
-        one = run_batch(model, small, tmp / "o1.parquet", 1, args)
-        two = run_batch(model, small, tmp / "o2.parquet", 2, args)
-        double = run_batch(model, large, tmp / "o3.parquet", 2, args)
-        for name, r in (("1 worker,  N", one), ("2 workers, N", two), ("2 workers, 2N", double)):
-            print(f"{name:14s} {r['rows']:>9,} rows  explaining {r['explaining']:7.1f} s "
-                  f"(run {r['seconds']:6.1f} s, wall {r['wall']:6.1f} s, {r['processes']} "
-                  f"process(es))  {r['rate']:8,.0f} rows/s ({r['rate'] / reference:4.2f}x "
-                  f"reference)  main process peak {r['peak_mib']:5.0f} MiB")
-            print(f"{'':14s} workers' processor time {r['cpu']:7.1f} s = {r['cpu'] / r['explaining']:.2f} "
-                  f"cores busy on average; {r['rows'] / r['cpu']:,.0f} rows per processor-second; "
-                  f"main process {r['main_cpu']:.1f} s")
-        print(f"two workers / one worker throughput: {two['rate'] / one['rate']:.2f}x (target >= 1.7)")
-        print(f"time for 2N / time for N (two workers, explaining): "
-              f"{double['explaining'] / two['explaining']:.2f} "
-              "(target <= 2.2)")
-        per_cpu = (two["rows"] / two["cpu"]) / (one["rows"] / one["cpu"])
-        print(f"rows per processor-second, two workers / one: {per_cpu:.2f} (1.0 = no parallel "
-              "overhead; the throughput ratio can only reach the cores the machine gives us)")
-        print(f"main process peak, 2N / N: {double['peak_mib'] / two['peak_mib']:.2f}")
+        rounds = []
+        for r in range(args.repeat):
+            one = run_batch(model, small, tmp / "o1.parquet", 1, args)
+            two = run_batch(model, small, tmp / "o2.parquet", 2, args)
+            double = run_batch(model, large, tmp / "o3.parquet", 2, args)
+            rounds.append((one, two, double))
+            print(f"round {r + 1} of {args.repeat}")
+            for name, x in (("1 worker,  N", one), ("2 workers, N", two),
+                            ("2 workers, 2N", double)):
+                report_run(name, x, reference)
+        summarise(rounds)
+
+
+def report_run(name: str, r: dict, reference: float) -> None:
+    print(f"  {name:14s} {r['rows']:>9,} rows  explaining {r['explaining']:7.1f} s "
+          f"(run {r['seconds']:6.1f} s, wall {r['wall']:6.1f} s, {r['processes']} "
+          f"process(es))  {r['rate']:8,.0f} rows/s ({r['rate'] / reference:4.2f}x "
+          f"reference)  main process peak {r['peak_mib']:5.0f} MiB")
+    print(f"  {'':14s} workers' processor time {r['cpu']:7.1f} s = "
+          f"{r['cpu'] / r['explaining']:.2f} cores busy on average; "
+          f"{r['rows'] / r['cpu']:,.0f} rows per processor-second; main process "
+          f"{r['main_cpu']:.1f} s; load average (1, 5, 15 min) {r['load']}")
+
+
+def spread(values, fmt: str) -> str:
+    values = list(values)
+    return (f"min {format(min(values), fmt)} / median {format(statistics.median(values), fmt)} "
+            f"/ max {format(max(values), fmt)}")
+
+
+def summarise(rounds) -> None:
+    """Every figure the issue asks for, over the rounds."""
+    print(f"over {len(rounds)} round(s):")
+    print(f"  rows per second, one worker:  {spread((o['rate'] for o, _, _ in rounds), ',.0f')}")
+    print(f"  rows per second, two workers: {spread((t['rate'] for _, t, _ in rounds), ',.0f')}")
+    print(f"  two workers / one worker throughput (same round): "
+          f"{spread((t['rate'] / o['rate'] for o, t, _ in rounds), '.2f')} (target >= 1.7)")
+    print(f"  time for N rows, two workers (explaining, s): "
+          f"{spread((t['explaining'] for _, t, _ in rounds), '.1f')}")
+    print(f"  time for 2N rows, two workers (explaining, s): "
+          f"{spread((d['explaining'] for _, _, d in rounds), '.1f')}")
+    print(f"  time for 2N / time for N (same round): "
+          f"{spread((d['explaining'] / t['explaining'] for _, t, d in rounds), '.2f')} "
+          "(target <= 2.2)")
+    print(f"  rows per processor-second, two workers / one (same round): "
+          f"{spread(((t['rows'] / t['cpu']) / (o['rows'] / o['cpu']) for o, t, _ in rounds), '.2f')}"
+          " (1.0 = each core as fast with two workers as with one)")
+    print(f"  main process peak memory, MiB, N rows: "
+          f"{spread((t['peak_mib'] for _, t, _ in rounds), '.0f')}; 2N rows: "
+          f"{spread((d['peak_mib'] for _, _, d in rounds), '.0f')}; "
+          f"2N / N: {spread((d['peak_mib'] / t['peak_mib'] for _, t, d in rounds), '.2f')}")
+    print(f"  main process processor time, s, two workers, N rows: "
+          f"{spread((t['main_cpu'] for _, t, _ in rounds), '.1f')}")
 
 
 if __name__ == "__main__":
