@@ -9,8 +9,12 @@ with ``--reasons K``, the decision at the cutoff and ``reason_<i>_feature``,
 ``OUT.rejects.csv`` with their row number and the reason.
 
 A run that stops (killed, cancelled, the machine restarted) leaves ``OUT.parquet.parts/``; the
-same command again skips the chunks already written. Changed arguments or a changed input start
-over, and the run says so.
+same command again skips the chunks already written. The parts are reused only when nothing
+that decides a value has changed: the workbench version and the versions of numpy, pandas,
+scikit-learn, scipy, numba and shap, the model file and the data file (their full SHA-256),
+``--class`` and every option that changes the output (``--workers`` and ``--scheduler`` do
+not). When anything differs the rerun discards the old parts and starts over, and says on
+stderr what differed; to start fresh by hand, delete ``OUT.parquet.parts/``.
 """
 
 from __future__ import annotations
