@@ -91,16 +91,29 @@ def test_bundled_dataset_every_level(window, cancer_files, tmp_path):
     assert "drop in AUC" in ranking.importance_plot.title
     assert sorted(ranking.order) == sorted(features)
     assert sorted(ranking.attribution_order) == sorted(features)
-    assert _left_ticks(ranking.attribution_plot) == ranking.attribution_order
-    assert _left_ticks(ranking.importance_plot) == ranking.order
+    from workbench.ui.levels.ranking import MAX_BARS
+
+    assert len(features) > MAX_BARS  # 30 features: the top ones drawn, named in the title
+    assert _left_ticks(ranking.attribution_plot) == ranking.attribution_order[:MAX_BARS]
+    assert _left_ticks(ranking.importance_plot) == ranking.order[:MAX_BARS]
+    assert f"top {MAX_BARS} of {len(features)} shown" in ranking.attribution_plot.title
     assert "log-odds of 1" in ranking.attribution_plot.axis_label("bottom")
     widths = _bars(ranking.attribution_plot)[0].opts["width"]
     assert np.all(np.diff(widths) <= 0), "largest mean |attribution| first"
+    if ranking.group_labels:  # long blocks are named in short, in full in the hover
+        full = ranking.group_labels[0]
+        assert ranking._hover_group(0, 0).startswith(full)
 
     pairs = _visit(window, "Pairs")
     assert pairs.shown is not None and pairs.shown.shape == (len(features),) * 2
     assert sorted(pairs.order) == sorted(features)
     assert "Pair map" in pairs.map_plot.title and features[0] in pairs.map_plot.title
+    top = float(np.nanmax(pairs.shown))
+    low, high = pairs.colorbar.levels()
+    if top > 1:  # H of a pair with a tiny joint effect: the scale stops at 1 and says so
+        assert (low, high) == (0.0, 1.0) and "H above 1" in pairs.matrix_plot.title
+    else:
+        assert high == pytest.approx(max(top, 0.1)) and "H above 1" not in pairs.matrix_plot.title
 
     versions = _visit(window, "Versions")
     assert versions.comparison is None

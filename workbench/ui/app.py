@@ -158,6 +158,10 @@ def run_app(*, demo: bool = False, snapshot_dir: Path | None = None, model: Path
         for path in snapshot(window, snapshot_dir):
             print(path)
         window.close()
+        # Worker processes, if the runner has them, would outlive os._exit holding our stdout.
+        shutdown = getattr(window.ctx.runner, "shutdown", None)
+        if shutdown is not None:
+            shutdown()
         sys.stdout.flush()
         # Skip interpreter teardown: PySide6 with pyqtgraph can crash while finalising.
         os._exit(0)

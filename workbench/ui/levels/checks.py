@@ -126,7 +126,10 @@ class ChecksLevel(Level):
                               "a model input); uses the cutoff in the settings")
         self.directions = QTableWidget(0, 2)
         self.directions.setHorizontalHeaderLabels(["Feature", "Expected direction"])
-        self.directions.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Stretch)
+        # Feature names in full (they are what the analyst reads); the direction box after them.
+        self.directions.horizontalHeader().setSectionResizeMode(
+            0, QHeaderView.ResizeMode.ResizeToContents)
+        self.directions.horizontalHeader().setSectionResizeMode(1, QHeaderView.ResizeMode.Stretch)
         self.directions.verticalHeader().setVisible(False)
         self.table = QTableWidget(0, 3)
         self.table.setHorizontalHeaderLabels(["Status", "Check", "Finding"])
@@ -163,7 +166,7 @@ class ChecksLevel(Level):
         split = QSplitter()
         for w in (left, middle, right):
             split.addWidget(w)
-        split.setSizes([260, 560, 420])
+        split.setSizes([330, 520, 390])
         layout = QVBoxLayout(self)
         layout.addWidget(self.heading)
         layout.addLayout(controls)
@@ -171,6 +174,10 @@ class ChecksLevel(Level):
         layout.addWidget(split, 1)
         self.results: list[dict] = []
         self._features: tuple = ()
+        self.evidence.setPlaceholderText(
+            "Set the expected directions (and a group column for the adverse impact ratio), "
+            "then press Run checks. Each check is listed with pass, warn or fail; choose one to "
+            "read its evidence here.")
 
     # ---- state --------------------------------------------------------------------------------
     def view_key(self) -> tuple:

@@ -225,8 +225,9 @@ class EffectLevel(Level):
                                      symbol="s", symbolSize=5, symbolBrush=SECOND))
         plot.addItem(pg.InfiniteLine(0, angle=0, pen=pg.mkPen(NEUTRAL, width=1)))
         self._mark_focus_value(plot)
-        self.ale_plot.set_text(f"ALE curve of {self.feature} (centred, {len(self.ale.counts)} bins)",
-                               self.feature, f"accumulated effect on the {self.ale.units}")
+        self.ale_plot.set_text(f"ALE curve of {self.feature}: accumulated local effect, centred "
+                               f"({len(self.ale.counts)} bins)",
+                               self.feature, f"ALE ({self.ale.units})")
 
     # ---- attribution scatter ---------------------------------------------------------------------------
     def _associations_arrived(self, result) -> None:

@@ -192,6 +192,11 @@ class PairsLevel(Level):
         # H of 1e-9) shows as the nothing it is.
         top = float(np.nanmax(matrix)) if np.isfinite(matrix).any() else 1.0
         levels = (-1.0, 1.0) if signed else (0.0, max(top, 0.1))
+        clipped = kind == "h" and top > 1.0
+        if clipped:
+            # H above 1 comes from a pair whose joint effect is tiny next to its parts (ratio of
+            # two small numbers); a scale reaching it would darken every meaningful cell.
+            levels = (0.0, 1.0)
         shown = np.where(np.isfinite(matrix), matrix, np.nan)
         if not signed:
             np.fill_diagonal(shown, np.nan)
@@ -210,7 +215,10 @@ class PairsLevel(Level):
         self.image = image
         # Names on the left, numbers along the bottom (long names would collide there).
         plot.getAxis("left").setTicks([[(i, f"{f}  {i + 1}") for i, f in enumerate(self.order)]])
-        plot.getAxis("bottom").setTicks([[(i, str(i + 1)) for i in range(p)]])
+        # Every number while they fit; with many features every 2nd or 5th (hover says all).
+        every = 1 if p <= 16 else 2 if p <= 30 else 5
+        plot.getAxis("bottom").setTicks([[(i, str(i + 1)) for i in range(p) if (i + 1) % every == 0
+                                          or i == 0]])
         self._draw_tree(plot, p)
         for block in self.clustering.blocks:
             idx = [self.order.index(f) for f in block]
@@ -240,6 +248,8 @@ class PairsLevel(Level):
         extra = ""
         if kind == "h" and self.h is not None:
             extra = f"; pairs computed among the {len(self.h.screened)} strongest ({self.h.sample} rows)"
+            if clipped:
+                extra += f"; H above 1 (up to {top:.3g}, tiny joint effects) at the top colour"
         self.matrix_plot.set_text(f"{KINDS[kind]} — {scale}{extra}; grey: not computed; at the "
                                   "right the clustering tree of the association (dashed: the "
                                   "block cut)", "", "")
@@ -250,7 +260,7 @@ class PairsLevel(Level):
 
     @staticmethod
     def tree_width(p: int) -> float:
-        return max(p * 0.22, 1.5)
+        return min(max(p * 0.22, 1.5), 3.0)
 
     def _draw_tree(self, plot, p: int) -> None:
         """The clustering tree to the right of the matrix, its leaves level with the rows."""

@@ -17,6 +17,10 @@ METRIC_LABELS = {"auc": "AUC", "log_loss": "log loss", "brier": "Brier score", "
                  "mae": "MAE", "poisson_deviance": "Poisson deviance"}
 
 
+MAX_BARS = 20  # features drawn per panel: more labels than this collide at 1440 x 900
+BLOCK_NAMES = 3  # features named in a block's label; the rest are counted (all in the hover)
+
+
 def metric_label(name: str) -> str:
     return METRIC_LABELS.get(name, name.replace("_", " "))
 
@@ -37,6 +41,17 @@ def _horizontal_bars(plot, values, labels, brush, errors=None) -> None:
     hi = float(np.nanmax(values + (np.asarray(errors) if errors is not None else 0))) if n else 1.0
     lo = float(np.nanmin(np.minimum(values, 0))) if n else 0.0
     plot.setXRange(lo - 0.02 * (hi - lo or 1), hi * 1.08 if hi > 0 else 1.0, padding=0)
+
+
+def _top_note(n: int) -> str:
+    return f"; the top {MAX_BARS} of {n} shown" if n > MAX_BARS else ""
+
+
+def _block_label(features) -> str:
+    features = list(features)
+    if len(features) <= BLOCK_NAMES:
+        return " + ".join(features)
+    return " + ".join(features[:BLOCK_NAMES]) + f" + {len(features) - BLOCK_NAMES} more"
 
 
 @register_level
@@ -172,13 +187,16 @@ class RankingLevel(Level):
             ranked = np.argsort(-np.nan_to_num(imp.mean, nan=-np.inf), kind="stable")
             self.order = [features[i] for i in ranked]
             means, spreads = np.asarray(imp.mean)[ranked], np.asarray(imp.spread)[ranked]
-            _horizontal_bars(self.importance_plot.plot, means, self.order, colour(CURVE, 220), spreads)
+            shown = slice(0, MAX_BARS)
+            _horizontal_bars(self.importance_plot.plot, means[shown], self.order[shown],
+                             colour(CURVE, 220), spreads[shown])
             change = "drop" if imp.greater_is_better else "rise"
             metric = metric_label(imp.metric)
             weighted = ", weighted by exposure" if getattr(imp, "exposure", False) else ""
             self.importance_plot.set_text(
                 f"Permutation importance: {change} in {metric} when a feature is shuffled "
-                f"({imp.repeats} repeats, {imp.rows_used:,} rows{weighted})",
+                f"({imp.repeats} repeats, {imp.rows_used:,} rows{weighted}"
+                f"{_top_note(len(self.order))})",
                 f"{change} in {metric} (baseline {imp.baseline:.4g})",
                 "feature (most important first)")
             self._draw_groups(imp)
@@ -186,12 +204,12 @@ class RankingLevel(Level):
             mean_abs = np.abs(np.asarray(att.values, float)).mean(axis=0)
             ranked = np.argsort(-mean_abs, kind="stable")
             self.attribution_order = [att.features[i] for i in ranked]
-            _horizontal_bars(self.attribution_plot.plot, mean_abs[ranked], self.attribution_order,
-                             colour(SECOND, 220))
+            _horizontal_bars(self.attribution_plot.plot, mean_abs[ranked][:MAX_BARS],
+                             self.attribution_order[:MAX_BARS], colour(SECOND, 220))
             units = adapter.output_units if adapter else ""
             self.attribution_plot.set_text(
                 f"Mean absolute attribution: average size of a feature's contribution "
-                f"({att.method}, {att.n_rows:,} rows)",
+                f"({att.method}, {att.n_rows:,} rows{_top_note(len(self.attribution_order))})",
                 f"mean |contribution| ({units})", "feature (largest first)")
 
     def _draw_groups(self, imp) -> None:
@@ -200,9 +218,11 @@ class RankingLevel(Level):
             message_item(self.group_plot.plot, "No blocks of associated features (association ≥ 0.5)"
                          if self.groups == [] else "No grouped importance in this result")
             self.group_labels = []
+            self._fit_group_plot(1)
             return
-        labels = [" + ".join(g.features) for g in groups]
-        self.group_labels = labels
+        labels = [_block_label(g.features) for g in groups]
+        self.group_labels = [" + ".join(g.features) for g in groups]
+        self._fit_group_plot(len(groups))
         self.group_values = [(g.mean, g.spread) for g in groups]
         _horizontal_bars(self.group_plot.plot, [g.mean for g in groups], labels, colour(CURVE, 160),
                          [g.spread for g in groups])
@@ -211,6 +231,10 @@ class RankingLevel(Level):
                                  "(their shared importance, which single permutations split)",
                                  f"{change} in {metric_label(imp.metric)} "
                                  f"(baseline {imp.baseline:.4g})", "block")
+
+    def _fit_group_plot(self, bars: int) -> None:
+        """As tall as its bars need, so the feature panels above keep the height for labels."""
+        self.group_plot.setMaximumHeight(110 + 42 * min(bars, 6))
 
     # ---- hover and clicks -------------------------------------------------------------------------
     @staticmethod

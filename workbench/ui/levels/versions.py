@@ -130,10 +130,12 @@ class VersionsLevel(Level):
         self.swap_buttons: dict[str, QPushButton] = {}
         grid = QGridLayout()
         grid.addWidget(QLabel(""), 0, 0)
-        grid.addWidget(QLabel("<b>B accepts</b>"), 0, 1, Qt.AlignmentFlag.AlignCenter)
-        grid.addWidget(QLabel("<b>B declines</b>"), 0, 2, Qt.AlignmentFlag.AlignCenter)
-        grid.addWidget(QLabel("<b>A accepts</b>"), 1, 0)
-        grid.addWidget(QLabel("<b>A declines</b>"), 2, 0)
+        self.swap_headers = {key: QLabel() for key in ("B_ok", "B_adverse", "A_ok", "A_adverse")}
+        grid.addWidget(self.swap_headers["B_ok"], 0, 1, Qt.AlignmentFlag.AlignCenter)
+        grid.addWidget(self.swap_headers["B_adverse"], 0, 2, Qt.AlignmentFlag.AlignCenter)
+        grid.addWidget(self.swap_headers["A_ok"], 1, 0)
+        grid.addWidget(self.swap_headers["A_adverse"], 2, 0)
+        self._name_swap_sides(None)
         for cell, (r, c) in {"both_accept": (1, 1), "swap_out": (1, 2), "swap_in": (2, 1),
                              "both_decline": (2, 2)}.items():
             button = QPushButton("—")
@@ -256,6 +258,16 @@ class VersionsLevel(Level):
         page.setChildrenCollapsible(False)
         return page
 
+    def _name_swap_sides(self, task: str | None) -> None:
+        """Accept / decline for classifiers; for a price or frequency, just the cutoff's sides."""
+        if task in ("regression", "count"):
+            ok, adverse = "below cutoff", "at/above cutoff"
+        else:
+            ok, adverse = "accepts", "declines"
+        for model in ("A", "B"):
+            self.swap_headers[f"{model}_ok"].setText(f"<b>{model} {ok}</b>")
+            self.swap_headers[f"{model}_adverse"].setText(f"<b>{model} {adverse}</b>")
+
     # ---- what this level depends on ---------------------------------------------------------
     def view_key(self) -> tuple:
         s = self.state
@@ -292,6 +304,7 @@ class VersionsLevel(Level):
         names = f"A: {a.name if a else '(none)'} against B: {b.name if b else '(none)'}"
         self.heading.setText(f"<b>Versions</b> — champion {names}")
         self.cell = None
+        self._name_swap_sides(a.adapter.task if a is not None else None)
         if a is None or b is None or ws.frame is None:
             missing = [what for what, held in (("model A", a), ("a second model B", b),
                                                ("a data file", ws.frame)) if held is None]
