@@ -146,7 +146,7 @@ class SettingsPanel(QWidget):
             self.positive.setCurrentText(str(adapter.positive_class))
             self.positive.setEnabled(True)
         else:
-            self.positive.addItem("(regression model)" if adapter else "(no model)")
+            self.positive.addItem(f"(none: a {adapter.task} model)" if adapter else "(no model)")
             self.positive.setEnabled(False)
         self.cutoff.setValue(s.cutoff)
         self.background.setValue(s.background_size)
