@@ -94,6 +94,8 @@ def run_batch(model: Path, data: Path, out: Path, workers: int, args) -> dict:
     return {"rows": summary["rows_written"], "seconds": summary["seconds"], "wall": wall,
             "explaining": summary["seconds_explaining"], "processes": summary["processes_used"],
             "cpu": summary["cpu_seconds"], "main_cpu": own["cpu"],
+            "occupancy": summary.get("worker_seconds", float("nan"))
+            / (summary["processes_used"] * summary["seconds_explaining"]),
             "rate": summary["rows_written"] / summary["seconds_explaining"], "peak_mib": peak,
             "load": f"{load_before} -> {load()}"}
 
@@ -196,6 +198,8 @@ def report_run(name: str, r: dict, reference: float) -> None:
           f"{r['cpu'] / r['explaining']:.2f} cores busy on average; "
           f"{r['rows'] / r['cpu']:,.0f} rows per processor-second; main process "
           f"{r['main_cpu']:.1f} s; load average (1, 5, 15 min) {r['load']}")
+    print(f"  {'':14s} each worker had rows to explain {r['occupancy']:.0%} of the explaining "
+          "time (idle workers, whatever the load)")
 
 
 def spread(values, fmt: str) -> str:
@@ -225,6 +229,8 @@ def summarise(rounds) -> None:
           f"{spread((t['peak_mib'] for _, t, _ in rounds), '.0f')}; 2N rows: "
           f"{spread((d['peak_mib'] for _, _, d in rounds), '.0f')}; "
           f"2N / N: {spread((d['peak_mib'] / t['peak_mib'] for _, t, d in rounds), '.2f')}")
+    print(f"  workers' occupancy, two workers, N rows: "
+          f"{spread((t['occupancy'] for _, t, _ in rounds), '.0%')}")
     print(f"  main process processor time, s, two workers, N rows: "
           f"{spread((t['main_cpu'] for _, t, _ in rounds), '.1f')}")
 

@@ -398,6 +398,7 @@ def test_chunks_cut_into_pieces_on_two_workers_give_the_one_process_output_and_r
     two = batch(linear_adapter, tmp_path / "bad.csv", tmp_path / "two.parquet",
                 scheduler=cluster.scheduler_address, **options)
     assert sent == [4, 4, 4, 3] and two.processes_used == 2
+    assert 0 < two.cpu_seconds and 0 < two.worker_seconds
     pd.testing.assert_frame_equal(read(two.output), read(one.output), check_exact=True)
     assert pd.read_csv(two.rejects).equals(pd.read_csv(one.rejects))
     assert pd.read_csv(two.rejects)["row"].tolist() == [7, 299, 300, 451, 1_203]

@@ -101,6 +101,7 @@ class BatchSummary:
     seconds_explaining: float = 0.0  # from the first chunk sent to the last one written
     processes_used: int = 0  # distinct processes that explained chunks in this call
     cpu_seconds: float = 0.0  # processor time those processes spent explaining
+    worker_seconds: float = 0.0  # wall-clock time they spent explaining, summed over them
 
     def as_dict(self) -> dict:
         return {"output": str(self.output), "rejects": None if self.rejects is None else str(self.rejects),
@@ -113,7 +114,8 @@ class BatchSummary:
                 "settings": self.settings.as_dict(), "started_over": self.started_over,
                 "notes": list(self.notes), "background_positions": list(self.background_positions),
                 "seconds_explaining": self.seconds_explaining,
-                "processes_used": self.processes_used, "cpu_seconds": self.cpu_seconds}
+                "processes_used": self.processes_used, "cpu_seconds": self.cpu_seconds,
+                "worker_seconds": self.worker_seconds}
 
 
 def check_settings(adapter, settings: BatchSettings) -> BatchSettings:
@@ -198,7 +200,7 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
     written_now = 0
     chunk_notes: list[str] = []
     processes: set[str] = set()
-    cpu_seconds = 0.0
+    cpu_seconds = worker_seconds = 0.0
 
     first_sent = None
 
@@ -221,6 +223,7 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
             written_now += 1
             processes.update(result.workers)
             cpu_seconds += result.cpu_seconds
+            worker_seconds += result.seconds
             if watch is not None:
                 watch(_status(reader, work, total_read, resumed_rows,
                               time.perf_counter() - (first_sent or started)))
@@ -248,7 +251,7 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
                         settings.seed, executor.name, time.perf_counter() - started, input_sha,
                         model_sha256, settings, work.started_over,
                         tuple(dict.fromkeys([*notes, *chunk_notes])), background_positions,
-                        explaining, len(processes), cpu_seconds)
+                        explaining, len(processes), cpu_seconds, worker_seconds)
 
 
 def _fraction(reader, work, rows_seen: int) -> float:

@@ -158,6 +158,7 @@ class ChunkResult:
     notes: tuple[str, ...] = ()
     workers: tuple[str, ...] = ()  # host:pid of the processes that explained the rows
     cpu_seconds: float = 0.0  # processor time those processes spent on them
+    seconds: float = 0.0  # wall-clock time those processes spent on them (summed)
 
     @property
     def rows_seen(self) -> int:
@@ -171,7 +172,7 @@ def join_results(index: int, start: int, pieces: list[ChunkResult]) -> ChunkResu
                        pa.concat_tables([r.rejects for r in pieces]),
                        tuple(dict.fromkeys(n for r in pieces for n in r.notes)),
                        tuple(dict.fromkeys(w for r in pieces for w in r.workers)),
-                       sum(r.cpu_seconds for r in pieces))
+                       sum(r.cpu_seconds for r in pieces), sum(r.seconds for r in pieces))
 
 
 def explain_chunk(job: ChunkJob, adapter, background: pd.DataFrame, settings: BatchSettings,
@@ -190,7 +191,7 @@ def explain_chunk(job: ChunkJob, adapter, background: pd.DataFrame, settings: Ba
 
 
 def _explain_chunk(job, adapter, background, settings, schemas) -> ChunkResult:
-    cpu_started = time.process_time()
+    cpu_started, started = time.process_time(), time.perf_counter()
     frame, problems = parse_numbers(adapter, job.frame)
     rows = frame[adapter.input_columns]
     positions = np.array([i for i in range(len(rows)) if i not in problems], dtype=np.int64)
@@ -221,7 +222,7 @@ def _explain_chunk(job, adapter, background, settings, schemas) -> ChunkResult:
                                    schema=rejected_schema, preserve_index=False)
     return ChunkResult(job.index, job.start, table, rejects, notes,
                        (f"{socket.gethostname()}:{os.getpid()}",),
-                       time.process_time() - cpu_started)
+                       time.process_time() - cpu_started, time.perf_counter() - started)
 
 
 def _one_thread() -> None:
