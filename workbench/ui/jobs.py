@@ -1,10 +1,14 @@
 """Engine work off the main thread: one job per request, progress, cancel, a result cache.
 
 A job is ``fn(progress, cancel) -> result``; ``cancel`` is a ``threading.Event`` the engine
-polls through ``workbench.engine.jobs.step``. Results are cached by key (model, data, segment,
-parameters), so going back to a view shows it at once. A result whose requester no longer
-wants it (``relevant()`` is False on arrival: the focus has moved on) is cached but not shown.
-``synchronous=True`` runs jobs in the calling thread, for tests and snapshots.
+polls through ``workbench.engine.jobs.step``. A job whose ``fn`` is a picklable
+:class:`~workbench.ui.pool_tasks.PoolTask` runs in a worker process (heavy engine work: in a
+thread it would hold Python's lock and freeze the window); any other callable runs on a small
+thread pool. Results are cached by key (model, data, segment, parameters), so going back to a
+view shows it at once. A result whose requester no longer wants it (``relevant()`` is False on
+arrival: the focus has moved on) is cached but not shown. A cancelled job ends for the window
+within :data:`CANCEL_GRACE_MS` even if its worker has not reached its next step yet.
+``synchronous=True`` runs every job in the calling thread, for tests and snapshots.
 """
 
 from __future__ import annotations
@@ -17,12 +21,23 @@ from collections import OrderedDict
 from collections.abc import Callable, Hashable
 from dataclasses import dataclass, field
 
-from PySide6.QtCore import QCoreApplication, QEventLoop, QObject, QRunnable, QThreadPool, Signal
+from PySide6.QtCore import (
+    QCoreApplication,
+    QEventLoop,
+    QObject,
+    QRunnable,
+    QThreadPool,
+    QTimer,
+    Signal,
+)
 
 from workbench.engine.errors import Cancelled
+from workbench.ui.pool_tasks import PoolTask
 
 CACHE_LIMIT = 96
+CANCEL_GRACE_MS = 900  # a cancelled job is over for the window after this, whatever the worker
 _PROGRESS_INTERVAL_S = 0.05
+_PROGRESS_POLL_MS = 50
 _ids = itertools.count(1)
 
 
@@ -41,6 +56,8 @@ class Job:
     started_at: float = field(default_factory=time.perf_counter)
     result: object = None
     error: BaseException | None = None
+    future: object = None  # concurrent.futures.Future of a job in a worker process
+    where: str = "thread"  # "thread" | "process" | "here"
 
 
 class _Signals(QObject):
@@ -76,6 +93,18 @@ class _Runnable(QRunnable):
             self.signals.returned.emit()
 
 
+def spin_events(ms: int) -> None:
+    """Handle the window's events for about ``ms`` milliseconds (waiting loops, benchmarks).
+
+    Not ``QCoreApplication.processEvents()``: in PySide6 6.12 every call of it takes one
+    reference from ``None`` (measured with ``sys.getrefcount(None)``), so a loop calling it a few
+    hundred times a second ends the interpreter within minutes ("none_dealloc").
+    """
+    loop = QEventLoop()
+    QTimer.singleShot(max(int(ms), 0), loop.quit)
+    loop.exec()
+
+
 class JobRunner(QObject):
     """Runs jobs on a small thread pool and tells the window about them."""
 
@@ -84,15 +113,24 @@ class JobRunner(QObject):
     job_ended = Signal(object, str)  # Job, "done" | "cancelled" | "failed: <message>"
 
     def __init__(self, parent: QObject | None = None, *, synchronous: bool = False,
-                 max_threads: int = 2) -> None:
+                 max_threads: int = 2, processes: int | None = None) -> None:
+        """``processes``: worker processes for PoolTask jobs (None: up to two; 0: threads)."""
         super().__init__(parent)
         self.synchronous = synchronous
         self.pool = QThreadPool(self)
         self.pool.setMaxThreadCount(max_threads)
+        self.processes = processes
+        self._lane = None  # ProcessLane, started with the first PoolTask
+        self._poll = QTimer(self)
+        self._poll.setInterval(_PROGRESS_POLL_MS)
+        self._poll.timeout.connect(self._poll_progress)
         self._cache: OrderedDict = OrderedDict()
         self._running: dict[Hashable, Job] = {}
         self._signals: dict[int, _Signals] = {}
         self.dropped = 0  # results that arrived after their requester moved on
+        app = QCoreApplication.instance()
+        if app is not None:
+            app.aboutToQuit.connect(self.shutdown)
 
     # ---- cache ------------------------------------------------------------------------------
     def cached(self, key: Hashable):
@@ -133,7 +171,11 @@ class JobRunner(QObject):
         self._running[key] = job
         self.job_started.emit(job)
         if self.synchronous:
+            job.where = "here"
             self._run_here(job)
+            return job
+        if isinstance(fn, PoolTask) and self.processes != 0:
+            self._run_in_process(job)
             return job
         signals = _Signals()
         signals.progressed.connect(lambda f, m, j=job: self._on_progress(j, f, m))
@@ -155,12 +197,83 @@ class JobRunner(QObject):
         else:
             self._on_returned(job, result)
 
+    # ---- worker processes ------------------------------------------------------------------
+    @property
+    def lane(self):
+        """The process pool (created, not yet started, on first use)."""
+        if self._lane is None:
+            from workbench.ui.process_jobs import ProcessLane
+
+            self._lane = ProcessLane(self.processes)
+        return self._lane
+
+    def warm_up(self) -> None:
+        """Start the worker processes now, so the first heavy job does not wait for them."""
+        if not self.synchronous and self.processes != 0:
+            self.lane.warm_up()
+
+    def _run_in_process(self, job: Job) -> None:
+        # The main thread polls the futures (every 50 ms while any runs) rather than being told
+        # from the pool's own thread: PySide 6.12 signals emitted from a plain Python thread
+        # crashed the interpreter here now and then (none_dealloc).
+        job.where = "process"
+        job.future = self.lane.submit(job.id, job.fn)
+        if not self._poll.isActive():
+            self._poll.start()
+
+    def _process_ended(self, job: Job) -> None:
+        if self._running.get(job.key) is not job:
+            return  # given up after a cancel: the window has moved on
+        from workbench.ui.process_jobs import outcome_of
+
+        result, exc = outcome_of(job.future)
+        if exc is None:
+            self._on_returned(job, result)
+            return
+        cause = exc.__cause__
+        exc.__traceback_text__ = str(cause) if cause is not None else "".join(
+            traceback.format_exception(exc))
+        self._on_errored(job, exc)
+
+    def _poll_progress(self) -> None:
+        """Main thread: progress and endings of the jobs in worker processes."""
+        by_id = {j.id: j for j in self._running.values() if j.where == "process"}
+        if not by_id or self._lane is None:
+            self._poll.stop()
+            return
+        latest = {}
+        for job_id, fraction, message in self._lane.progress_updates():
+            latest[job_id] = (fraction, message)  # only the newest of each job is shown
+        for job_id, (fraction, message) in latest.items():
+            if job_id in by_id:
+                self._on_progress(by_id[job_id], fraction, message)
+        for job in by_id.values():
+            if job.future.done():
+                self._process_ended(job)
+
+    def shutdown(self) -> None:
+        """Cancel everything and stop the worker processes (the application is closing)."""
+        self.cancel_all()
+        if self._lane is not None:
+            self._lane.shutdown()
+            self._lane = None
+
+    # ---- cancelling ---------------------------------------------------------------------------
     def cancel(self, job: Job) -> None:
         job.cancel.set()
+        if job.future is not None and self._lane is not None:
+            self._lane.cancel(job.id, job.future)
+        if job.where != "here":
+            QTimer.singleShot(CANCEL_GRACE_MS, self, lambda j=job: self._give_up(j))
+
+    def _give_up(self, job: Job) -> None:
+        """A cancelled job still running after the grace period ends for the window now."""
+        if self._running.get(job.key) is job:
+            self._on_errored(job, Cancelled("cancelled"))
 
     def cancel_all(self) -> None:
         for job in self.running:
-            job.cancel.set()
+            self.cancel(job)
 
     def wait_idle(self, timeout_s: float = 60.0) -> bool:
         """Process events until no job runs (snapshots and tests); False on timeout."""
@@ -168,9 +281,8 @@ class JobRunner(QObject):
         while self._running:
             if time.perf_counter() > end:
                 return False
-            QCoreApplication.processEvents(QEventLoop.ProcessEventsFlag.AllEvents, 50)
-            time.sleep(0.005)
-        QCoreApplication.processEvents()
+            spin_events(20)
+        spin_events(0)
         return True
 
     # ---- arrivals (main thread) -------------------------------------------------------------
@@ -184,6 +296,8 @@ class JobRunner(QObject):
         return job.waiters
 
     def _on_returned(self, job: Job, result) -> None:
+        if self._running.get(job.key) is not job:
+            return  # ended already (given up after a cancel)
         self._store(job.key, result)
         waiters = self._finish(job)
         self.job_ended.emit(job, "done")
@@ -194,6 +308,8 @@ class JobRunner(QObject):
             on_done(result)
 
     def _on_errored(self, job: Job, exc: BaseException) -> None:
+        if self._running.get(job.key) is not job:
+            return
         waiters = self._finish(job)
         if isinstance(exc, Cancelled):
             outcome = "cancelled"

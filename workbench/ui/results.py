@@ -1,7 +1,9 @@
 """The engine results the levels show, requested as cached jobs.
 
 The ui computes no explanation itself: every number here comes from a ``workbench.engine``
-function, run by the :class:`~workbench.ui.jobs.JobRunner`. Keys name the model (SHA-256), the
+function, run by the :class:`~workbench.ui.jobs.JobRunner`. The heavy ones are
+:class:`~workbench.ui.pool_tasks.PoolTask` jobs, run in worker processes: they carry the model
+and the data as ``Shared`` inputs and the rows as positions, never closures. Keys name the model (SHA-256), the
 data (SHA-256 of data and reference), the segment and the parameters. Where an engine part has
 not landed yet, the request fails at once with :class:`NotAvailable` and the level says so.
 """
@@ -10,15 +12,23 @@ from __future__ import annotations
 
 import hashlib
 import importlib
-import inspect
-from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 
-from workbench.engine.jobs import rng, step
+from workbench.engine.jobs import rng
 from workbench.ui.focus import Focus, FocusState
 from workbench.ui.jobs import JobRunner
+from workbench.ui.pool_tasks import (
+    PoolTask,
+    Rows,
+    Sampled,
+    Shared,
+    association_blocks,
+    call_engine,
+    engine_call,
+    score_rows,
+)
 from workbench.ui.segment import segment_rows
 from workbench.ui.threads import single_threaded
 from workbench.ui.workspace import Workspace
@@ -43,31 +53,12 @@ def engine_part(name: str):
         return None
 
 
-def call_engine(fn, *args, **kwargs):
-    """Call an engine function with the keyword options it accepts (others are left out)."""
-    try:
-        params = inspect.signature(fn).parameters
-    except (TypeError, ValueError):
-        return fn(*args, **kwargs)
-    if any(p.kind is inspect.Parameter.VAR_KEYWORD for p in params.values()):
-        return fn(*args, **kwargs)
-    return fn(*args, **{k: v for k, v in kwargs.items() if k in params})
-
-
 def _engine_fn(module: str, name: str, what: str):
     part = engine_part(module)
     fn = getattr(part, name, None) if part is not None else None
     if fn is None:
         raise NotAvailable(f"{what}: {NOT_AVAILABLE} (workbench.engine.{module}.{name} is not in this build)")
     return fn
-
-
-@dataclass(frozen=True)
-class Sampled:
-    """An engine result over some rows of the data; ``rows`` are their positions in it."""
-
-    rows: np.ndarray
-    result: object
 
 
 def values_digest(values: dict) -> str:
@@ -131,17 +122,7 @@ class Results:
             adapter = self._need(slot)
         except NotAvailable as exc:
             return self._fail(on_error, exc)
-        frame = self.workspace.frame
-
-        def work(progress, cancel):
-            step(progress, cancel, 0.0, "scoring")
-            output = adapter.score(frame)
-            step(progress, cancel, 0.5, "scoring")
-            response = adapter.response_from_output(output) if adapter.output_kind in (
-                "log-odds", "log of the mean", "probability", "value") else adapter.response(frame)
-            step(progress, cancel, 1.0, "scored")
-            return np.asarray(output, float), np.asarray(response, float)
-
+        work = PoolTask(score_rows, (Shared(adapter), Shared(self.workspace.frame)))
         return self._request(self.key("scores", slot, None), f"Scoring all rows with model {slot}",
                              work, on_done, on_error, relevant)
 
@@ -151,20 +132,26 @@ class Results:
         return {"background": self.workspace.background_frame(), "background_size": s.background_size,
                 "seed": s.seed}
 
+    def _shared_attribution_options(self) -> dict:
+        return {**self._attribution_options(), "background": Shared(self.workspace.background_frame())}
+
+    def _rows(self, rows: np.ndarray) -> Rows:
+        return Rows(Shared(self.workspace.frame), rows)
+
     def sample_attributions(self, slot: str, state: FocusState, on_done, on_error=None, relevant=None):
-        """Attributions of a seeded sample of the segment (``Sampled``)."""
+        """Attributions of a seeded sample of the segment (``Sampled``).
+
+        The ``_engine_fn`` calls in these methods only check that the engine part is there (the
+        worker process imports the function itself).
+        """
         try:
             adapter = self._need(slot)
-            explain = _engine_fn("attributions", "explain", "Attributions")
+            _engine_fn("attributions", "explain", "Attributions")
         except NotAvailable as exc:
             return self._fail(on_error, exc)
         rows = self.sample_rows(state, SAMPLE_ROWS)
-        frame = self.workspace.frame.iloc[rows]
-        opts = self._attribution_options()
-
-        def work(progress, cancel):
-            result = call_engine(explain, adapter, frame, progress=progress, cancel=cancel, **opts)
-            return Sampled(rows, result)
+        work = PoolTask(engine_call, ("attributions", "explain", Shared(adapter), self._rows(rows)),
+                        {"rows": rows, **self._shared_attribution_options()})
 
         s = self.workspace.settings
         key = self.key("attributions", slot, state, rows=len(rows), bg=s.background_size, seed=s.seed)
@@ -196,18 +183,13 @@ class Results:
         """(Associations, Clustering) of the model's input columns over the segment."""
         try:
             adapter = self._need(slot)
-            assoc = _engine_fn("associations", "associations", "Feature association")
-            order = _engine_fn("associations", "cluster_order", "Feature association")
+            _engine_fn("associations", "associations", "Feature association")
+            _engine_fn("associations", "cluster_order", "Feature association")
         except NotAvailable as exc:
             return self._fail(on_error, exc)
         rows = self.sample_rows(state, IMPORTANCE_ROWS)
-        frame = self.workspace.frame.iloc[rows]
         columns = list(adapter.input_columns)
-
-        def work(progress, cancel):
-            result = call_engine(assoc, frame, columns=columns, progress=progress, cancel=cancel)
-            clustering = call_engine(order, result.strength, result.features)
-            return result, clustering
+        work = PoolTask(association_blocks, (self._rows(rows), columns))
 
         key = self.key("associations", slot, state, rows=len(rows), columns=tuple(columns))
         return self._request(key, "Feature association", work, on_done, on_error, relevant)
@@ -215,8 +197,7 @@ class Results:
     def importance(self, slot: str, state: FocusState, groups, on_done, on_error=None, relevant=None):
         try:
             adapter = self._need(slot)
-            permutation_importance = _engine_fn("importance", "permutation_importance",
-                                                "Permutation importance")
+            _engine_fn("importance", "permutation_importance", "Permutation importance")
         except NotAvailable as exc:
             return self._fail(on_error, exc)
         y_all = self.workspace.labels(slot)
@@ -226,15 +207,11 @@ class Results:
         rows = self.sample_rows(state, IMPORTANCE_ROWS)
         known = y_all.iloc[rows].notna().to_numpy()
         rows = rows[known]
-        frame = self.workspace.frame.iloc[rows]
-        y = y_all.iloc[rows]
         seed = self.workspace.settings.seed
         groups = [list(g) for g in groups] if groups else None
-
-        def work(progress, cancel):
-            return Sampled(rows, call_engine(permutation_importance, adapter, frame, y, repeats=5,
-                                             seed=seed, groups=groups, progress=progress,
-                                             cancel=cancel))
+        work = PoolTask(engine_call, ("importance", "permutation_importance", Shared(adapter),
+                                      self._rows(rows), Rows(Shared(y_all), rows)),
+                        {"rows": rows, "repeats": 5, "seed": seed, "groups": groups})
 
         key = self.key("importance", slot, state, rows=len(rows), seed=seed,
                        groups=tuple(map(tuple, groups or ())),
@@ -243,37 +220,37 @@ class Results:
                              on_error, relevant)
 
     # ---- effects ------------------------------------------------------------------------------------
-    def _effect_frame(self, state: FocusState) -> tuple[np.ndarray, pd.DataFrame]:
+    def _effect_frame(self, state: FocusState) -> tuple[np.ndarray, Rows]:
         rows = self.sample_rows(state, EFFECT_ROWS)
-        return rows, self.workspace.frame.iloc[rows]
+        return rows, self._rows(rows)
+
+    @staticmethod
+    def _engine_task(module: str, name: str, adapter, *args, rows, **options) -> PoolTask:
+        return PoolTask(engine_call, (module, name, Shared(adapter), *args),
+                        {"rows": rows, **options})
 
     def partial_dependence(self, slot, state, feature, on_done, on_error=None, relevant=None):
         try:
             adapter = self._need(slot)
-            fn = _engine_fn("effects", "partial_dependence", "Effect curve")
+            _engine_fn("effects", "partial_dependence", "Effect curve")
         except NotAvailable as exc:
             return self._fail(on_error, exc)
         rows, frame = self._effect_frame(state)
         seed = self.workspace.settings.seed
-
-        def work(progress, cancel):
-            return Sampled(rows, call_engine(fn, adapter, frame, feature, grid_size=20, ice_rows=200,
-                                             seed=seed, progress=progress, cancel=cancel))
-
+        work = self._engine_task("effects", "partial_dependence", adapter, frame, feature, rows=rows,
+                                 grid_size=20, ice_rows=200, seed=seed)
         key = self.key("pd", slot, state, feature=feature, rows=len(rows), seed=seed)
         return self._request(key, f"Effect curve of {feature}", work, on_done, on_error, relevant)
 
     def ale(self, slot, state, feature, on_done, on_error=None, relevant=None):
         try:
             adapter = self._need(slot)
-            fn = _engine_fn("effects", "accumulated_local_effects", "ALE curve")
+            _engine_fn("effects", "accumulated_local_effects", "ALE curve")
         except NotAvailable as exc:
             return self._fail(on_error, exc)
         rows, frame = self._effect_frame(state)
-
-        def work(progress, cancel):
-            return Sampled(rows, call_engine(fn, adapter, frame, feature, bins=20, progress=progress,
-                                             cancel=cancel))
+        work = self._engine_task("effects", "accumulated_local_effects", adapter, frame, feature,
+                                 rows=rows, bins=20)
 
         key = self.key("ale", slot, state, feature=feature, rows=len(rows))
         return self._request(key, f"ALE curve of {feature}", work, on_done, on_error, relevant)
@@ -281,15 +258,13 @@ class Results:
     def pair_map(self, slot, state, pair, on_done, on_error=None, relevant=None):
         try:
             adapter = self._need(slot)
-            fn = _engine_fn("effects", "pair_dependence", "Pair map")
+            _engine_fn("effects", "pair_dependence", "Pair map")
         except NotAvailable as exc:
             return self._fail(on_error, exc)
         rows, frame = self._effect_frame(state)
         a, b = pair
-
-        def work(progress, cancel):
-            return Sampled(rows, call_engine(fn, adapter, frame, a, b, grid_size=12,
-                                             progress=progress, cancel=cancel))
+        work = self._engine_task("effects", "pair_dependence", adapter, frame, a, b, rows=rows,
+                                 grid_size=12)
 
         key = self.key("pairmap", slot, state, pair=tuple(pair), rows=len(rows))
         return self._request(key, f"Pair map of {a} and {b}", work, on_done, on_error, relevant)
@@ -298,15 +273,13 @@ class Results:
     def interactions(self, slot, state, on_done, on_error=None, relevant=None):
         try:
             adapter = self._need(slot)
-            fn = _engine_fn("interactions", "h_statistics", "Interaction strength (H)")
+            _engine_fn("interactions", "h_statistics", "Interaction strength (H)")
         except NotAvailable as exc:
             return self._fail(on_error, exc)
         rows, frame = self._effect_frame(state)
         seed = self.workspace.settings.seed
-
-        def work(progress, cancel):
-            return Sampled(rows, call_engine(fn, adapter, frame, sample=H_SAMPLE, screen=H_SCREEN, seed=seed,
-                                             progress=progress, cancel=cancel))
+        work = self._engine_task("interactions", "h_statistics", adapter, frame, rows=rows,
+                                 sample=H_SAMPLE, screen=H_SCREEN, seed=seed)
 
         key = self.key("h", slot, state, rows=len(rows), seed=seed, sample=H_SAMPLE)
         return self._request(key, f"Interaction strength H (model {slot})", work, on_done,
@@ -316,20 +289,20 @@ class Results:
         """Mean |SHAP interaction value| per pair, for tree models, when the engine offers it."""
         try:
             adapter = self._need(slot)
-            fn = _engine_fn("shap_interactions", "shap_interaction_strength", "SHAP interaction strength")
+            _engine_fn("shap_interactions", "shap_interaction_strength", "SHAP interaction strength")
             if not engine_part("shap_interactions").supports(adapter):
                 raise NotAvailable("SHAP interaction strength is computed for tree models only "
                                    f"(model {slot} is {adapter.model_type})")
         except NotAvailable as exc:
             return self._fail(on_error, exc)
         rows = self.sample_rows(state, 300)
-        frame = self.workspace.frame.iloc[rows]
-        opts = self._attribution_options()
-
-        def work(progress, cancel):
-            return Sampled(rows, call_engine(fn, adapter, frame, sample=len(frame), progress=progress,
-                                             cancel=cancel, **opts))
+        work = self._engine_task("shap_interactions", "shap_interaction_strength", adapter,
+                                 self._rows(rows), rows=rows, sample=len(rows),
+                                 **self._shared_attribution_options())
 
         key = self.key("shapint", slot, state, rows=len(rows))
         return self._request(key, f"SHAP interaction strength (model {slot})", work, on_done,
                              on_error, relevant)
+
+
+__all__ = ["NotAvailable", "Results", "Sampled", "call_engine", "engine_part", "values_digest"]
