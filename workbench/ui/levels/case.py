@@ -156,6 +156,8 @@ class CaseLevel(Level):
         self.trial_score: float | None = None
         self.data_score: float | None = None
         self._filling = False
+        self._bar_items: dict = {}  # drawn once per plot, then updated (an edit redraws nothing)
+        self._running_items: dict = {}
 
     def view_key(self) -> tuple:
         s = self.state
@@ -321,8 +323,11 @@ class CaseLevel(Level):
         self._show_score(adapter, output)
         digest = values_digest({"row": state.row, **{k: v for k, v in self.trial.items()}})
         self._digest = digest
-        message_item(self.bars.plot, "Computing contributions…")
-        self.running.plot.clear()
+        if self.contributions is None:
+            message_item(self.bars.plot, "Computing contributions…")
+            self.running.plot.clear()
+        else:  # an edit: the bars of the last values stay until the new ones arrive
+            self.bars.title_label.setText("Contribution bars: updating for the trial values…")
         key = self.view_key()
         self.ctx.results.case_attributions(
             state.model, frame, digest, self._show_contributions, self._contributions_failed,
@@ -368,18 +373,28 @@ class CaseLevel(Level):
         self._draw_running(labels, bar_values, base, adapter)
         show_for_case_level(self.reasons_panel, self, attributions)
 
+    @staticmethod
+    def _items(plot, held: dict, build) -> dict:
+        """The plot's items, built and added again only when the plot was cleared meanwhile."""
+        if not held or any(item not in plot.items for item in held.values()):
+            plot.clear()
+            held.clear()
+            held.update(build())
+            for item in held.values():
+                plot.addItem(item)
+        return held
+
     def _draw_bars(self, labels, values, adapter) -> None:
         plot = self.bars.plot
-        plot.clear()
-        plot.enableAutoRange()
         n = len(values)
         ys = np.arange(n)
         brushes = [colour(RAISES if v > 0 else LOWERS, 235 if f else 130)
                    for v, f in zip(values, self.bar_features, strict=True)]
-        bars = pg.BarGraphItem(x0=np.minimum(values, 0), width=np.abs(values), y=ys, height=0.7,
-                               brushes=brushes, pens=[pg.mkPen(None)] * n)
-        plot.addItem(bars)
-        plot.addItem(pg.InfiniteLine(0, angle=90, pen=pg.mkPen(NEUTRAL, width=1)))
+        items = self._items(plot, self._bar_items, lambda: {
+            "bars": pg.BarGraphItem(x0=[0], width=[0], y=[0], height=0.7),
+            "zero": pg.InfiniteLine(0, angle=90, pen=pg.mkPen(NEUTRAL, width=1))})
+        items["bars"].setOpts(x0=np.minimum(values, 0), width=np.abs(values), y=ys, height=0.7,
+                              brushes=brushes, pens=[pg.mkPen(None)] * n)
         # Feature labels: shortened to fit, and the axis told how wide they are (a squeezed pane
         # would otherwise hide them); the full text is in the hover line.
         labels = [t if len(t) <= LABEL_CHARS else t[: LABEL_CHARS - 1] + "…" for t in labels]
@@ -400,29 +415,37 @@ class CaseLevel(Level):
             f"contribution to the {adapter.output_units}", None)
         self.bars.title_text = self.bars.title
 
+    @staticmethod
+    def _mark_line(k: int, text: str, col: str, style) -> pg.InfiniteLine:
+        return pg.InfiniteLine(0, angle=90, pen=pg.mkPen(col, width=1.5, style=style), label=text,
+                               labelOpts={"position": 0.03 + 0.06 * k, "color": col,
+                                          "fill": (255, 255, 255, 220)})
+
     def _draw_running(self, labels, values, base, adapter) -> None:
         plot = self.running.plot
-        plot.clear()
-        plot.enableAutoRange()
         n = len(values)
         totals = base + np.cumsum(values)
         xs = np.concatenate([[base], totals])
         ys = np.concatenate([[-0.5], np.arange(n)])
-        plot.addItem(pg.PlotDataItem(xs, ys, pen=pg.mkPen("#444", width=1.5)))
-        brushes = [colour(RAISES if v > 0 else LOWERS) for v in values]
-        plot.addItem(pg.ScatterPlotItem(totals, np.arange(n), size=9, brush=brushes,
-                                        pen=pg.mkPen("w")))
+        styles = pg.QtCore.Qt.PenStyle
+        items = self._items(plot, self._running_items, lambda: {
+            "path": pg.PlotDataItem(pen=pg.mkPen("#444", width=1.5)),
+            "totals": pg.ScatterPlotItem(size=9, pen=pg.mkPen("w")),
+            "base": self._mark_line(0, "base value", NEUTRAL, styles.DashLine),
+            "case": self._mark_line(1, "this case", "#000", styles.SolidLine),
+            "cutoff": self._mark_line(2, "cutoff", "#6A3D9A", styles.DotLine)})
+        items["path"].setData(xs, ys)
+        items["totals"].setData(totals, np.arange(n),
+                                brush=[colour(RAISES if v > 0 else LOWERS) for v in values])
         cutoff_output = float(adapter.output_from_response(self.ctx.workspace.settings.cutoff)) \
             if adapter.output_kind != "raw score" else None
-        marks = [(base, "base value", NEUTRAL, pg.QtCore.Qt.PenStyle.DashLine),
-                 (self.trial_output, "this case", "#000", pg.QtCore.Qt.PenStyle.SolidLine)]
-        if cutoff_output is not None and np.isfinite(cutoff_output):
-            marks.append((cutoff_output, "cutoff", "#6A3D9A", pg.QtCore.Qt.PenStyle.DotLine))
-        for k, (x, text, col, style) in enumerate(marks):
-            line = pg.InfiniteLine(x, angle=90, pen=pg.mkPen(col, width=1.5, style=style),
-                                   label=text, labelOpts={"position": 0.03 + 0.06 * k, "color": col,
-                                                          "fill": (255, 255, 255, 220)})
-            plot.addItem(line)
+        marks = [(base, "base"), (self.trial_output, "case")]
+        has_cutoff = cutoff_output is not None and bool(np.isfinite(cutoff_output))
+        if has_cutoff:
+            marks.append((cutoff_output, "cutoff"))
+        for x, name in marks:
+            items[name].setValue(x)
+        items["cutoff"].setVisible(has_cutoff)
         lo = min(xs.min(), *(m[0] for m in marks))
         hi = max(xs.max(), *(m[0] for m in marks))
         pad = (hi - lo) * 0.08 or 0.5
