@@ -109,6 +109,7 @@ def test_bundled_dataset_every_level(window, cancer_files, tmp_path):
     assert sorted(pairs.order) == sorted(features)
     assert "Pair map" in pairs.map_plot.title and features[0] in pairs.map_plot.title
     top = float(np.nanmax(pairs.shown))
+    assert pairs.colorbar.axis.autoSIPrefixScale == 1.0  # the scale's numbers are the values
     low, high = pairs.colorbar.levels()
     if top > 1:  # H of a pair with a tiny joint effect: the scale stops at 1 and says so
         assert (low, high) == (0.0, 1.0) and "H above 1" in pairs.matrix_plot.title

@@ -242,7 +242,10 @@ class PairsLevel(Level):
         # Under the matrix, not beside it: the matrix is short of width, not of height.
         self.colorbar = pg.ColorBarItem(values=levels, colorMap=cmap, interactive=False, width=12,
                                         orientation="horizontal", label=self._scale_label(kind))
-        self.colorbar.axis.enableAutoSIPrefix(False)  # values as they are, no "(x0.001)"
+        # Values as they are (0.05, not "50 (x0.001)"): pyqtgraph scales an unlabelled axis
+        # below 1 even with the prefix switched off, unless no range allows it.
+        self.colorbar.axis.setSIPrefixEnableRanges(())
+        self.colorbar.axis.enableAutoSIPrefix(False)
         self.colorbar.setImageItem(image, insert_in=plot)
         scale = "signed: −1 … +1, diverging scale" if signed else "strength, sequential scale"
         extra = ""

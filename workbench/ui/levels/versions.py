@@ -204,7 +204,8 @@ class VersionsLevel(Level):
         self.bars_diff = TitledPlot("Difference B − A", "", "")
         for p in (self.bars_a, self.bars_b, self.bars_diff):
             p.plot.invertY(True)
-            p.title_label.setFixedHeight(24)  # equal heights keep the linked bars in line
+            # Equal heights keep the linked bars in line; two lines, as the narrow ones wrap.
+            p.title_label.setFixedHeight(40)
         for p in (self.bars_b, self.bars_diff):
             p.plot.setYLink(self.bars_a.plot)
             p.plot.getAxis("left").setStyle(showValues=False)
@@ -218,7 +219,7 @@ class VersionsLevel(Level):
         bars = QSplitter(Qt.Orientation.Horizontal)
         for p in (self.bars_a, self.bars_b, self.bars_diff):
             bars.addWidget(p)
-        for i, stretch in enumerate((5, 3, 3)):
+        for i, stretch in enumerate((7, 3, 3)):  # the first carries the feature labels
             bars.setStretchFactor(i, stretch)
         cl.addWidget(bars, 1)
         self.tabs = QTabWidget()
@@ -517,7 +518,7 @@ class VersionsLevel(Level):
                                               (self.bars_b, vb[order], adapter_b, "B")):
             self._draw_bars(titled.plot, values, labels if slot == "A" else None, span)
             titled.set_text(f"Contribution bars under {slot}",
-                            f"contribution ({adapter.output_units})", None)
+                            adapter.output_units, None)
         self.case_heading.setText(
             self.case_heading.text().split("<br>")[0] + "<br>"
             + "; ".join(f"{slot}: base value {att.base_value:.3g}, output "
@@ -527,7 +528,7 @@ class VersionsLevel(Level):
         if adapter_a.output_kind == adapter_b.output_kind:
             diff = vb[order] - va[order]
             self._draw_bars(self.bars_diff.plot, diff, None, float(np.max(np.abs(diff))) or 1.0)
-            self.bars_diff.set_text("Difference B − A", f"B − A ({adapter_a.output_units})", None)
+            self.bars_diff.set_text("Difference B − A", adapter_a.output_units, None)
         else:
             message_item(self.bars_diff.plot, "The two models explain different outputs "
                          f"({adapter_a.output_kind} and {adapter_b.output_kind}): no difference")
