@@ -108,6 +108,11 @@ def _fmt(value) -> str:
         return "—"
     return str(value)
 
+BEFORE_THE_FIRST_RUN = (
+    "<p style='color:#555'>Set the expected direction of each numeric feature (and a group "
+    "column for the adverse impact ratio), then press <b>Run checks</b>. Each check is listed "
+    "with pass, warn or fail; choose one to read its evidence here.</p>")
+
 
 @register_level
 class ChecksLevel(Level):
@@ -125,7 +130,7 @@ class ChecksLevel(Level):
         self.group.setToolTip("Column of group labels for the adverse impact ratio (need not be "
                               "a model input); uses the cutoff in the settings")
         self.directions = QTableWidget(0, 2)
-        self.directions.setHorizontalHeaderLabels(["Feature", "Expected direction"])
+        self.directions.setHorizontalHeaderLabels(["Feature", "Expected"])
         # Feature names in full (they are what the analyst reads); the direction box after them.
         self.directions.horizontalHeader().setSectionResizeMode(
             0, QHeaderView.ResizeMode.ResizeToContents)
@@ -174,10 +179,6 @@ class ChecksLevel(Level):
         layout.addWidget(split, 1)
         self.results: list[dict] = []
         self._features: tuple = ()
-        self.evidence.setPlaceholderText(
-            "Set the expected directions (and a group column for the adverse impact ratio), "
-            "then press Run checks. Each check is listed with pass, warn or fail; choose one to "
-            "read its evidence here.")
 
     # ---- state --------------------------------------------------------------------------------
     def view_key(self) -> tuple:
@@ -203,6 +204,8 @@ class ChecksLevel(Level):
         stored = project_of(self.ctx).checks
         if stored and not self.results:
             self.show_results(stored)
+        if not self.results:
+            self.evidence.setHtml(BEFORE_THE_FIRST_RUN)
 
     def _fill_directions(self, adapter) -> None:
         numeric = () if adapter is None else tuple(
