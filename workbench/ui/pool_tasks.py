@@ -116,7 +116,8 @@ def write_shared(obj, key: str, folder: str) -> SharedRef:
 _flags = None  # shared bytes: a job's cancel flag is flags[slot]
 _progress_queue = None
 PROGRESS_INTERVAL_S = 0.05
-WORKER_NICENESS = 10  # the window's own process comes first on a busy machine
+WORKER_NICENESS = 5  # the window's own process comes first (at 10 the workers got little
+# processor time while other programs kept the processors busy)
 
 
 def init_worker(flags, progress_queue, openmp_threads: int, window_pid: int) -> None:

@@ -156,6 +156,7 @@ class CaseLevel(Level):
         self.trial_score: float | None = None
         self.data_score: float | None = None
         self._filling = False
+        self._trial_cache: tuple | None = None
         self._bar_items: dict = {}  # drawn once per plot, then updated (an edit redraws nothing)
         self._running_items: dict = {}
 
@@ -293,6 +294,16 @@ class CaseLevel(Level):
             self.table.item(i, 0).setFont(font)
 
     def trial_frame(self) -> pd.DataFrame:
+        """The row with its trial values (kept until they change: read it, do not modify it)."""
+        key = (self.ctx.workspace.generation, self.state.row,
+               repr(sorted((k, repr(v)) for k, v in self.trial.items())))
+        if self._trial_cache is not None and self._trial_cache[0] == key:
+            return self._trial_cache[1]
+        frame = self._trial_frame()
+        self._trial_cache = (key, frame)
+        return frame
+
+    def _trial_frame(self) -> pd.DataFrame:
         frame = self._original().copy()
         for col, value in self.trial.items():
             if isinstance(value, str):
