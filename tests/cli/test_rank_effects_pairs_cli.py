@@ -164,6 +164,10 @@ def test_pairs_json(interacting):
     assert h == sorted(h, reverse=True)
     assert {out["h_pairs"][0]["a"], out["h_pairs"][0]["b"]} == {"x1", "x2"}
     assert len(out["h_pairs"]) == 3  # screen 3 -> three pairs
+    # the strength of the planted pair leads too (its value is checked against a worked
+    # example in tests/reference/test_interactions.py; a boosted fit shrinks it)
+    strengths = [p["strength"] for p in out["h_pairs"]]
+    assert strengths[0] == max(strengths) > 0.1 and min(strengths) >= 0
     # H^2 of x1 is (1/9) / (1/9 + 1/3) = 1/4 for x1 x2 + x3 (Friedman and Popescu 2008, eq. 46)
     assert 0.3 < out["h_overall"]["x1"] < 0.7 and out["h_overall"]["x3"] < out["h_overall"]["x1"]
     assert np.asarray(out["association"]["matrix"]).shape == (4, 4)

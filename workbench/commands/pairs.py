@@ -90,6 +90,7 @@ def run(args) -> int:
         background=background_rows(args.background),
     )
     assoc, clusters = association_blocks(adapter, x, args.block_threshold)
+    index = {f: i for i, f in enumerate(res.features)}
     payload = {
         "model": str(loaded.path),
         "model_sha256": loaded.sha256,
@@ -107,7 +108,12 @@ def run(args) -> int:
         "screened": res.screened,
         "h_overall": dict(zip(res.features, res.h_overall, strict=True)),
         "h2_overall": dict(zip(res.features, res.h2_overall, strict=True)),
-        "h_pairs": [{"a": a, "b": b, "h": h, "h2": h * h} for a, b, h in res.ranked_pairs()],
+        # strength: the unnormalised pairwise H, the rms of the interaction part in output units
+        "h_pairs": [
+            {"a": a, "b": b, "h": h, "h2": h * h,
+             "strength": float(res.pair_strength[index[a], index[b]])}
+            for a, b, h in res.ranked_pairs()
+        ],
         "association": {"features": assoc.features, "matrix": assoc.matrix},
         "blocks": clusters.blocks,
     }
@@ -126,7 +132,12 @@ def run(args) -> int:
         ]
     )
     print()
-    print_table([{"pair": f"{p['a']} x {p['b']}", "H": float(p["h"])} for p in payload["h_pairs"]])
+    print_table([
+        {"pair": f"{p['a']} x {p['b']}", "H": float(p["h"]), f"strength ({res.units})": p["strength"]}
+        for p in payload["h_pairs"]
+    ])
+    print("H is the pair's interaction as a share of its joint effect; strength is the same "
+          "interaction in the output's units (root mean square), which ranks weak pairs lower.")
     if clusters.blocks:
         print(
             "\nblocks of associated columns: " + "; ".join(" + ".join(b) for b in clusters.blocks)

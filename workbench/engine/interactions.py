@@ -15,7 +15,11 @@ estimated on the same sample. One m x m block of model calls per feature gives b
 
 H^2_j is the share of the variance of f that is not explained by j and the rest separately; it is
 0 for a feature that acts additively. H^2_jk can exceed 1 when the pair's joint effect is small
-next to its parts; it is reported as computed. The functions are taken on the explained output
+next to its parts; it is reported as computed. Because H is a share, a pair whose joint effect
+is weak can rank high; the unnormalised strength, the root mean square of the numerator
+sqrt((1/m) sum_i [F_jk - F_j - F_k]^2), is in the units of the output and ranks pairs by how
+much they move it (Friedman and Popescu discuss the unnormalised form beside eq. 44; from
+memory, section not checked). The functions are taken on the explained output
 by default (log-odds for classifiers with a margin), where effects add up.
 """
 
@@ -49,7 +53,9 @@ class Interactions:
     ``h2_overall`` (p,): H^2_j; ``h2_pairs`` (p, p): H^2_jk, symmetric, NaN on the diagonal and
     where the pair was not computed (outside the screened features); 0 for a pair whose joint
     effect is nil (sum of squares below ``NIL_SHARE`` of the model's);
-    ``screened``: the features whose pairs were computed; ``sample``: rows in the sample.
+    ``screened``: the features whose pairs were computed; ``sample``: rows in the sample;
+    ``pair_strength`` (p, p): the unnormalised pairwise strength, the root mean square of the
+    interaction part F_jk - F_j - F_k over the sample, in the output's units (NaN as h2_pairs).
     """
 
     features: list[str]
@@ -62,6 +68,7 @@ class Interactions:
     scale: str
     units: str
     background: int | None = None  # rows averaged over; None = the sample itself
+    pair_strength: np.ndarray | None = None
 
     @property
     def h_overall(self) -> np.ndarray:
@@ -71,16 +78,23 @@ class Interactions:
     def h_pairs(self) -> np.ndarray:
         return np.sqrt(self.h2_pairs)
 
+    def ranked_strengths(self) -> list[tuple[str, str, float]]:
+        """Computed pairs as (a, b, unnormalised strength), strongest first."""
+        return _ranked(self.features, self.pair_strength)
+
     def ranked_pairs(self) -> list[tuple[str, str, float]]:
         """Computed pairs as (a, b, H), strongest first."""
-        h = self.h_pairs
-        out = [
-            (self.features[i], self.features[j], float(h[i, j]))
-            for i in range(len(self.features))
-            for j in range(i + 1, len(self.features))
-            if np.isfinite(h[i, j])
-        ]
-        return sorted(out, key=lambda t: -t[2])
+        return _ranked(self.features, self.h_pairs)
+
+
+def _ranked(features: list[str], matrix: np.ndarray) -> list[tuple[str, str, float]]:
+    out = [
+        (features[i], features[j], float(matrix[i, j]))
+        for i in range(len(features))
+        for j in range(i + 1, len(features))
+        if np.isfinite(matrix[i, j])
+    ]
+    return sorted(out, key=lambda t: -t[2])
 
 
 def _centre(v: np.ndarray) -> np.ndarray:
@@ -195,8 +209,9 @@ def h_statistics(
             rest = _centre(_replaced_scores(score, s, others, bg, **where).mean(axis=1))
         h2[j] = _ratio(f_all - one_way[j] - rest, f_all, total_ss)
     pairs = np.full((p, p), np.nan)
-    strength = np.where(np.isfinite(h2), h2, -np.inf)
-    chosen = sorted(np.argsort(-strength, kind="stable")[:n_screen].tolist())
+    strength = np.full((p, p), np.nan)
+    ranked = np.where(np.isfinite(h2), h2, -np.inf)
+    chosen = sorted(np.argsort(-ranked, kind="stable")[:n_screen].tolist())
     done = p
     for a_pos, j in enumerate(chosen):
         for k in chosen[a_pos + 1 :]:
@@ -212,7 +227,9 @@ def h_statistics(
                 label=f"H-statistic: {feats[j]} x {feats[k]}",
             )
             joint = _centre(mat.mean(axis=1))
-            pairs[j, k] = pairs[k, j] = _ratio(joint - one_way[j] - one_way[k], joint, total_ss)
+            part = joint - one_way[j] - one_way[k]
+            pairs[j, k] = pairs[k, j] = _ratio(part, joint, total_ss)
+            strength[j, k] = strength[k, j] = float(np.sqrt(np.mean(part**2)))
             done += 1
     step(progress, cancel, 1.0, "H-statistics: done")
     return Interactions(
@@ -226,4 +243,5 @@ def h_statistics(
         scale,
         scale_units(adapter, scale),
         None if exact else int(bg.size),
+        strength,
     )
