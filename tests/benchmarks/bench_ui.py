@@ -1,7 +1,8 @@
 """Speed of the window (a script, not a test): ``python tests/benchmarks/bench_ui.py``.
 
 Run one part with its name as argument (``heartbeat``, ``trial_values``, ``portfolio_200k``,
-``trial_values_bars_only``).
+``trial_values_bars_only``; ``heartbeat_threads`` runs the heartbeat with every job in threads,
+as before the worker processes, for comparison).
 
 1. Heartbeat: a 10 ms timer on the main thread while engine jobs run (worker processes); the
    worst gap between beats is the longest the window froze, split into the main thread's own
@@ -44,7 +45,7 @@ def _window(synchronous: bool):
     return app, win
 
 
-def heartbeat() -> dict:
+def heartbeat(*, processes: int | None = None) -> dict:
     """Worst main-thread gap while the Effect level's jobs run for model B: first visit (engine
     imports and compiled kernels loading), then again with another seed (steady state)."""
     from PySide6.QtCore import QTimer
@@ -52,6 +53,8 @@ def heartbeat() -> dict:
     from workbench.ui.jobs import spin_events
 
     app, win = _window(synchronous=False)
+    if processes is not None:
+        win.ctx.runner.processes = processes  # 0: every job in threads, as before the pool
     out = {}
     for run, seed in (("first", 0), ("again", 1)):
         beats, during, cpu, waited = [], [], [], []
@@ -187,6 +190,7 @@ def portfolio_200k() -> dict:
 if __name__ == "__main__":
     only = sys.argv[1:]
     for name, fn in (("heartbeat", heartbeat), ("trial_values", trial_values),
+                     ("heartbeat_threads", lambda: heartbeat(processes=0)),
                      ("portfolio_200k", portfolio_200k),
                      ("trial_values_bars_only", lambda: trial_values(with_reasons=False))):
         if not only or name in only:
