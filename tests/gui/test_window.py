@@ -169,6 +169,13 @@ def test_pairs_cell_opens_pair_map(demo_window):
         pairs.kind.setCurrentIndex(index)
         assert pairs.matrix_plot.title
     assert "×" in (pairs._hover(1, 0) or "")
+    # the unnormalised strength is the H job's pair_strength, in the clustering order
+    pairs.kind.setCurrentIndex(pairs.kind.findData("h_strength"))
+    assert "output units" in pairs.matrix_plot.title
+    feats = list(pairs.h.features)
+    pos = [feats.index(f) for f in pairs.order]
+    expected = np.asarray(pairs.h.pair_strength)[np.ix_(pos, pos)]
+    np.testing.assert_allclose(pairs.shown, expected, equal_nan=True)
 
 
 def test_back_and_forward_through_focus_history(demo_window):

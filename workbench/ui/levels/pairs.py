@@ -30,12 +30,14 @@ from workbench.ui.plotting import (
 
 KINDS = {
     "h": "Interaction strength (Friedman's H)",
+    "h_strength": "Interaction strength in output units (unnormalised H)",
     "shap": "SHAP interaction strength (tree models)",
     "association": "Feature association (signed)",
 }
 
 SCALE_LABELS = {
     "h": "Friedman's H of the pair (0: no interaction)",
+    "h_strength": "rms of the pair's interaction part ({units})",
     "shap": "mean |SHAP interaction value| ({units})",
     "association": "association: −1 opposite, 0 none, +1 together",
 }
@@ -158,6 +160,8 @@ class PairsLevel(Level):
             feats, m, signed = list(self.assoc.features), np.asarray(self.assoc.matrix, float), True
         elif kind == "h" and self.h is not None:
             feats, m, signed = list(self.h.features), np.asarray(self.h.h_pairs, float), False
+        elif kind == "h_strength" and self.h is not None:
+            feats, m, signed = list(self.h.features), np.asarray(self.h.pair_strength, float), False
         elif kind == "shap" and self.shap is not None:
             feats = list(self.shap.features)
             m, signed = np.asarray(getattr(self.shap, "strength", getattr(self.shap, "matrix", None)), float), False
@@ -176,7 +180,8 @@ class PairsLevel(Level):
         kind = self.current_kind()
         got = self._matrix_for(kind)
         if got is None:
-            text = self.errors.get(kind) or self.errors.get("association") or "Computing…"
+            source = "h" if kind == "h_strength" else kind  # both come from the H job
+            text = self.errors.get(source) or self.errors.get("association") or "Computing…"
             message_item(plot, text)
             self.shown = None
             self.matrix_plot.set_text(KINDS[kind], "", "")
@@ -249,7 +254,7 @@ class PairsLevel(Level):
         self.colorbar.setImageItem(image, insert_in=plot)
         scale = "signed: −1 … +1, diverging scale" if signed else "strength, sequential scale"
         extra = ""
-        if kind == "h" and self.h is not None:
+        if kind in ("h", "h_strength") and self.h is not None:
             extra = f"; pairs computed among the {len(self.h.screened)} strongest ({self.h.sample} rows)"
             if clipped:
                 extra += f"; H above 1 (up to {top:.3g}, tiny joint effects) at the top colour"
