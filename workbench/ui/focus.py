@@ -10,7 +10,7 @@ from dataclasses import dataclass, field, replace
 
 from PySide6.QtCore import QObject, Signal
 
-from workbench.ui.segment import Condition
+from workbench.engine.segments import Condition
 
 HISTORY_LIMIT = 200
 

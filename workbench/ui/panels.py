@@ -13,8 +13,8 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from workbench.engine.segments import describe_segment
 from workbench.ui.context import Context
-from workbench.ui.segment import describe_segment
 
 NO_TARGET = "(no target)"
 

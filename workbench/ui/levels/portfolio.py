@@ -19,8 +19,8 @@ from PySide6.QtWidgets import (
 )
 
 from workbench.engine.errors import InputError
+from workbench.engine.segments import OPERATORS, Condition, describe_segment
 from workbench.ui.levels.base import Level, register_level
-from workbench.ui.segment import OPERATORS, Condition, describe_segment
 
 ROW_ROLE = Qt.ItemDataRole.UserRole + 1
 NO_EXPOSURE = "(none: one unit per row)"
