@@ -258,8 +258,15 @@ class EffectLevel(Level):
         if self.partner is None:
             # No interaction found (an additive model has none): colour by the most associated.
             self.partner = self.associated or ("", float("nan"), "")
-        if self.sample is not None:
+        if self.scatter_item is not None and self.scatter_rows is not None:
+            self._recolour_scatter()  # the points stay; a full redraw stalls the window
+        elif self.sample is not None:
             self._draw_scatter()
+
+    def _recolour_scatter(self) -> None:
+        brushes, legend = self._scatter_brushes(self.scatter_rows)
+        self.legend.setText(legend)
+        self.scatter_item.setBrush(brushes)
 
     def _sample_arrived(self, sampled) -> None:
         self.sample = sampled
@@ -289,12 +296,7 @@ class EffectLevel(Level):
             xs = _positions(values, levels) + jitter
         else:
             xs = pd.to_numeric(pd.Series(values), errors="coerce").to_numpy(float)
-        partner = self.partner[0] if self.partner else ""
-        if partner:
-            brushes, legend = self._partner_colours(partner, rows)
-        else:
-            brushes, legend = [colour(CURVE, 170)] * len(rows), ("colour: one colour (the strongest "
-                                                                 "partner is known once the H-statistics are in)")
+        brushes, legend = self._scatter_brushes(rows)
         self.legend.setText(legend)
         self.scatter_rows, self.scatter_x, self.scatter_y = rows, xs, contrib
         item = pg.ScatterPlotItem(xs, contrib, size=6, brush=brushes, pen=pg.mkPen(None),
@@ -311,6 +313,14 @@ class EffectLevel(Level):
         self.scatter_plot.set_text(
             f"Attribution scatter of {self.feature}: value against its contribution ({len(rows):,} rows)",
             self.feature, f"contribution ({adapter.output_units if adapter else ''})")
+
+    def _scatter_brushes(self, rows: np.ndarray):
+        partner = self.partner[0] if self.partner else ""
+        if partner:
+            return self._partner_colours(partner, rows)
+        # one brush for all points: a list of colours makes pyqtgraph build a brush per point
+        return pg.mkBrush(colour(CURVE, 170)), ("colour: one colour (the strongest partner is "
+                                                "known once the H-statistics are in)")
 
     def _draw_focus_marker(self) -> None:
         s, ws = self.state, self.ctx.workspace
