@@ -17,6 +17,7 @@ import numpy as np
 import pandas as pd
 
 from workbench.engine.jobs import rng
+from workbench.engine.segments import segment_rows
 from workbench.ui.focus import Focus, FocusState
 from workbench.ui.jobs import JobRunner
 from workbench.ui.pool_tasks import (
@@ -29,7 +30,6 @@ from workbench.ui.pool_tasks import (
     engine_call,
     score_rows,
 )
-from workbench.ui.segment import segment_rows
 from workbench.ui.threads import single_threaded
 from workbench.ui.workspace import Workspace
 
@@ -38,6 +38,7 @@ EFFECT_ROWS = 2000  # rows behind effect curves, ALE and pair maps
 IMPORTANCE_ROWS = 5000  # rows permuted for permutation importance
 H_SAMPLE = 300  # rows behind the H-statistics (their cost grows with the square of this)
 H_SCREEN = 8  # pairwise H among this many features with the strongest overall H
+H_BACKGROUND = 100  # each partial dependence averaged over this many sample rows (as the CLI)
 NOT_AVAILABLE = "not available yet"
 
 
@@ -279,9 +280,11 @@ class Results:
         rows, frame = self._effect_frame(state)
         seed = self.workspace.settings.seed
         work = self._engine_task("interactions", "h_statistics", adapter, frame, rows=rows,
-                                 sample=H_SAMPLE, screen=H_SCREEN, seed=seed)
+                                 sample=H_SAMPLE, screen=H_SCREEN, seed=seed,
+                                 background=H_BACKGROUND)
 
-        key = self.key("h", slot, state, rows=len(rows), seed=seed, sample=H_SAMPLE)
+        key = self.key("h", slot, state, rows=len(rows), seed=seed, sample=H_SAMPLE,
+                       background=H_BACKGROUND)
         return self._request(key, f"Interaction strength H (model {slot})", work, on_done,
                              on_error, relevant)
 
