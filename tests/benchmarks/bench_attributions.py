@@ -16,6 +16,7 @@ alongside when present.
 
 from __future__ import annotations
 
+import os
 import statistics
 import sys
 import warnings
@@ -36,7 +37,7 @@ from workbench.engine.adapter import ModelAdapter  # noqa: E402
 from workbench.engine.attribution import tree as tree_module  # noqa: E402
 from workbench.engine.attributions import explain, select_background  # noqa: E402
 
-RUNS = 5
+RUNS = int(os.environ.get("BENCH_RUNS", "5"))
 
 
 def show(label, times):
