@@ -142,6 +142,19 @@ def test_effect_ice_line_opens_case(demo_window):
     assert win.ctx.focus.state.level == "Case" and win.ctx.focus.state.row == effect.ice_rows[k]
 
 
+def test_effect_scatter_hover_names_the_row_under_the_cursor(demo_window):
+    win = demo_window
+    win.show_level("Effect")
+    effect = win.levels["Effect"]
+    point = effect.scatter_item.points()[5]
+    text = effect._hover_scatter(point.pos().x(), point.pos().y())
+    assert text is not None and text.startswith("row ") and "contribution" in text
+    row = int(text.split(":")[0].removeprefix("row "))
+    assert row in set(effect.scatter_rows.tolist())
+    far = float(np.nanmax(effect.scatter_y)) * 10 + 100
+    assert effect._hover_scatter(point.pos().x(), far) is None
+
+
 def test_effect_point_and_example_open_case(demo_window):
     win = demo_window
     win.show_level("Effect")

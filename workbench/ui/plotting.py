@@ -224,3 +224,11 @@ def message_item(plot: pg.PlotItem, text: str) -> pg.TextItem:
     plot.setYRange(0, 1, padding=0)
     item.setPos(0.5, 0.5)
     return item
+
+
+def point_under(item, x: float, y: float):
+    """The first spot of a scatter item under (x, y), or None (no item, or nothing there)."""
+    if item is None:
+        return None
+    points = item.pointsAt(QPointF(x, y))
+    return points[0] if len(points) else None

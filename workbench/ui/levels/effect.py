@@ -18,6 +18,7 @@ from workbench.ui.plotting import (
     category_ticks,
     colour,
     message_item,
+    point_under,
     sequential_map,
     thin_indices,
     value_colours,
@@ -394,13 +395,10 @@ class EffectLevel(Level):
         return f"{self.feature} = {self.ale.edges[i]:.4g}: ALE {self.ale.values[i]:+.4g}"
 
     def _hover_scatter(self, x, y) -> str | None:
-        if self.scatter_item is None:
+        point = point_under(self.scatter_item, x, y)
+        if point is None:
             return None
-        points = self.scatter_item.pointsAt(pg.QtCore.QPointF(x, y))
-        if len(points) == 0:
-            return None
-        row = points[0].data()
-        return f"row {row}: contribution {points[0].pos().y():+.4g} — click to open this Case"
+        return f"row {point.data()}: contribution {point.pos().y():+.4g} — click to open this Case"
 
     def ice_row_near(self, x: float, y: float, tolerance: float | None = None) -> int | None:
         """The row whose ICE line passes closest above or below (x, y), within ``tolerance``

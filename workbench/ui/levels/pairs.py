@@ -23,6 +23,7 @@ from workbench.ui.plotting import (
     category_ticks,
     diverging_map,
     message_item,
+    point_under,
     sequential_map,
     thin_indices,
     value_colours,
@@ -386,12 +387,10 @@ class PairsLevel(Level):
                                    f"(blue lowers, yellow raises; ±{lim:.2g} {units})", a, b)
 
     def _hover_scatter(self, x, y) -> str | None:
-        if self.scatter_item is None:
+        point = point_under(self.scatter_item, x, y)
+        if point is None:
             return None
-        points = self.scatter_item.pointsAt(pg.QtCore.QPointF(x, y))
-        if len(points) == 0:
-            return None
-        row = int(points[0].data())
+        row = int(point.data())
         return f"row {row}: joint attribution {self.scatter_joint[row]:+.4g} — click to open this Case"
 
     def _scatter_axis(self, series: pd.Series, rows: np.ndarray, seed: int):
