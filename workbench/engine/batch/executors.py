@@ -8,13 +8,16 @@ size of the input (and whatever the number of workers).
 - :class:`DaskCluster`: ``workers=K`` starts a LocalCluster on loopback (127.0.0.1, K worker
   processes of one thread each, no dashboard) and closes it afterwards; ``scheduler=ADDRESS``
   joins a running cluster and leaves it running. The model, the background, the settings and
-  the output schemas are sent to every worker once. Each chunk is cut into pieces, about two
-  per worker (never below ``MIN_PIECE_ROWS`` rows), so every worker has work while the main
-  process reads the next chunk and writes the last one, and the last chunk of the input is
-  shared by all the workers instead of leaving all but one idle. A worker keeps numba, OpenMP
-  and BLAS to one thread so that workers do not fight over the cores. The pieces of a chunk
-  come back as Arrow tables in the output's schema and are joined in row order; a row's values
-  do not depend on the piece that held it.
+  the output schemas are sent to every worker once, and every worker explains a few background
+  rows before the first chunk (:meth:`DaskCluster.warm_up`: imports and compiled kernels), so
+  the first chunk does not wait for the slowest start. Each chunk is cut into pieces, about two
+  per worker (never below ``MIN_PIECE_ROWS`` rows), and the pieces wait in this process until a
+  worker has fewer than ``PIECES_PER_WORKER_QUEUED`` of them: each worker pulls work at its own
+  speed, so a worker that shares its core with something else does not hold the others up (with
+  pieces dealt out in turn, the fast worker ran dry while the slow one finished its share). A
+  worker keeps numba, OpenMP and BLAS to one thread so that workers do not fight over the
+  cores. The pieces of a chunk come back as Arrow tables in the output's schema and are joined
+  in row order; a row's values do not depend on the piece or the worker that held it.
 """
 
 from __future__ import annotations
@@ -23,12 +26,19 @@ import logging
 from collections import deque
 from collections.abc import Callable, Iterator
 
-from workbench.engine.batch.scoring import ChunkJob, ChunkResult, explain_chunk, join_results
+from workbench.engine.batch.scoring import (
+    ChunkJob,
+    ChunkResult,
+    explain_chunk,
+    join_results,
+    warm_up_rows,
+)
 from workbench.engine.errors import InputError
 
 MIN_PIECE_ROWS = 2_000  # an explain call costs about as much as 50 rows whatever its size
 PIECES_PER_WORKER = 2
-CHUNKS_IN_FLIGHT = 2  # one chunk being explained, the next one queued behind it
+PIECES_PER_WORKER_QUEUED = 2  # one being explained, the next one waiting on the worker
+CHUNKS_IN_FLIGHT = 3  # chunks read and not yet written: enough pieces to keep every worker fed
 
 
 def piece_bounds(rows: int, workers: int) -> list[tuple[int, int]]:
@@ -51,6 +61,9 @@ class InProcess:
 
     def __exit__(self, *exc):
         return False
+
+    def warm_up(self, job: ChunkJob) -> None:
+        """Nothing to do: this process explained the probe rows when the method was chosen."""
 
     def submit(self, job: ChunkJob) -> None:
         self._done.append(explain_chunk(job, *self._args))
@@ -90,6 +103,9 @@ class DaskCluster:
         self._shared = None
         self._chunks: dict[int, dict] = {}  # chunk index -> its place and finished pieces
         self._finished: deque[ChunkResult] = deque()
+        self._waiting: deque[ChunkJob] = deque()  # pieces no worker has been given yet
+        self._queued: dict[str, int] = {}  # worker address -> pieces given and not returned
+        self._given: dict = {}  # future -> the worker it was given to
         self._n_workers = 1
         self.in_flight = CHUNKS_IN_FLIGHT
         self.name = ""
@@ -111,7 +127,11 @@ class DaskCluster:
             self.__exit__(None, None, None)
             where = self._scheduler or "127.0.0.1"
             raise InputError(f"could not reach a Dask scheduler at {where} ({exc})") from None
-        self._n_workers = len(self._client.scheduler_info().get("workers", {})) or 1
+        self._queued = {address: 0 for address in self._client.scheduler_info().get("workers", {})}
+        if not self._queued:
+            self.__exit__(None, None, None)
+            raise InputError(f"the Dask scheduler at {self._scheduler} has no workers")
+        self._n_workers = len(self._queued)
         self._shared = [self._client.scatter(x, broadcast=True) for x in self._args]
         self._futures = distributed.as_completed()
         if self._on_start is not None:
@@ -128,14 +148,35 @@ class DaskCluster:
         self._client = self._cluster = None
         return False
 
+    def warm_up(self, job: ChunkJob) -> None:
+        """Every worker explains ``job``'s rows once and the result is thrown away."""
+        job = ChunkJob(job.index, job.start, job.frame, job.method, one_thread=True)
+        futures = [self._client.submit(warm_up_rows, job, *self._shared, workers=[address],
+                                       pure=False) for address in self._queued]
+        self._client.gather(futures)
+
     def submit(self, job: ChunkJob) -> None:
         bounds = piece_bounds(len(job.frame), self._n_workers)
         self._chunks[job.index] = {"start": job.start, "left": len(bounds), "done": []}
         for a, b in bounds:
-            piece = ChunkJob(job.index, job.start + a, job.frame.iloc[a:b], job.method,
-                             one_thread=True)
-            data = self._client.scatter(piece, hash=False)  # hashing costs time, gains nothing
-            self._futures.add(self._client.submit(explain_chunk, data, *self._shared, pure=False))
+            self._waiting.append(ChunkJob(job.index, job.start + a, job.frame.iloc[a:b],
+                                          job.method, one_thread=True))
+        self._hand_out()
+
+    def _hand_out(self) -> None:
+        """Give waiting pieces to the workers with room in their queue, least loaded first."""
+        while self._waiting:
+            address = min(self._queued, key=self._queued.get)
+            if self._queued[address] >= PIECES_PER_WORKER_QUEUED:
+                return
+            piece = self._waiting.popleft()
+            # hashing the piece costs time and gains nothing; the data goes where it is used
+            data = self._client.scatter(piece, workers=[address], hash=False)
+            future = self._client.submit(explain_chunk, data, *self._shared, workers=[address],
+                                         allow_other_workers=True, pure=False)
+            self._queued[address] += 1
+            self._given[future] = address
+            self._futures.add(future)
 
     def pending(self) -> int:
         return len(self._chunks) + len(self._finished)
@@ -144,7 +185,11 @@ class DaskCluster:
         while not self._finished:
             future = next(self._futures)
             piece = future.result()
+            address = self._given.pop(future)
+            if address in self._queued:
+                self._queued[address] -= 1
             future.release()
+            self._hand_out()
             chunk = self._chunks[piece.index]
             chunk["done"].append(piece)
             chunk["left"] -= 1

@@ -102,6 +102,7 @@ class BatchSummary:
     processes_used: int = 0  # distinct processes that explained chunks in this call
     cpu_seconds: float = 0.0  # processor time those processes spent explaining
     worker_seconds: float = 0.0  # wall-clock time they spent explaining, summed over them
+    main_cpu_seconds: float = 0.0  # this process's processor time while the chunks were explained
 
     def as_dict(self) -> dict:
         return {"output": str(self.output), "rejects": None if self.rejects is None else str(self.rejects),
@@ -115,7 +116,8 @@ class BatchSummary:
                 "notes": list(self.notes), "background_positions": list(self.background_positions),
                 "seconds_explaining": self.seconds_explaining,
                 "processes_used": self.processes_used, "cpu_seconds": self.cpu_seconds,
-                "worker_seconds": self.worker_seconds}
+                "worker_seconds": self.worker_seconds,
+                "main_cpu_seconds": self.main_cpu_seconds}
 
 
 def check_settings(adapter, settings: BatchSettings) -> BatchSettings:
@@ -203,19 +205,22 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
     cpu_seconds = worker_seconds = 0.0
 
     first_sent = None
+    first_cpu = 0.0
 
     def todo():
-        nonlocal total_read, first_sent
+        nonlocal total_read, first_sent, first_cpu
         for chunk in reader:
             total_read = chunk.stop
             if chunk.index in work.chunks:
                 continue
             jobs.step(progress, cancel, _fraction(reader, work, total_read), "explaining rows")
             if first_sent is None:
-                first_sent = time.perf_counter()
+                first_sent, first_cpu = time.perf_counter(), time.process_time()
             yield ChunkJob(chunk.index, chunk.start, chunk.frame, method)
 
     with executor:
+        jobs.step(progress, cancel, 0.0, "starting the workers")
+        executor.warm_up(ChunkJob(-1, 0, background.iloc[:_PROBE_ROWS], method))
         for result in run_chunks(executor, todo()):
             work.add_part(result.index, result.start, result.start + result.rows_seen,
                           result.rows, result.rejects, result.notes)
@@ -231,6 +236,7 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
             if stop_after_chunks is not None and written_now >= stop_after_chunks:
                 raise RuntimeError(f"stopped after {written_now} chunk(s) (test hook)")
     explaining = time.perf_counter() - first_sent if first_sent is not None else 0.0
+    main_cpu = time.process_time() - first_cpu if first_sent is not None else 0.0
     work.set_total(total_read)
     rows_written = sum(c["rows"] for c in work.chunks.values())
     rows_rejected = sum(c["rejected"] for c in work.chunks.values())
@@ -251,7 +257,7 @@ def run_batch(adapter, data: str | Path, out: str | Path, *, settings: BatchSett
                         settings.seed, executor.name, time.perf_counter() - started, input_sha,
                         model_sha256, settings, work.started_over,
                         tuple(dict.fromkeys([*notes, *chunk_notes])), background_positions,
-                        explaining, len(processes), cpu_seconds, worker_seconds)
+                        explaining, len(processes), cpu_seconds, worker_seconds, main_cpu)
 
 
 def _fraction(reader, work, rows_seen: int) -> float:

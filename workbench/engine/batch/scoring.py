@@ -12,6 +12,7 @@ from __future__ import annotations
 import os
 import socket
 import time
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -180,14 +181,31 @@ def explain_chunk(job: ChunkJob, adapter, background: pd.DataFrame, settings: Ba
     """Attributions (and reasons) of the rows of one chunk, as tables in ``schemas`` (rows,
     rejects); rejects for the rows that fail. ``job.one_thread``: keep numba, OpenMP and BLAS
     to one thread (a worker process sharing the cores with other workers)."""
-    if not job.one_thread:
+    with _thread_limits(job.one_thread):
         return _explain_chunk(job, adapter, background, settings, schemas)
+
+
+def warm_up_rows(job: ChunkJob, adapter, background: pd.DataFrame, settings: BatchSettings,
+                 schemas=None) -> int:
+    """Explain ``job``'s rows and drop the result, so that a worker has its imports and
+    compiled kernels loaded before its first chunk; the number of rows explained."""
+    with _thread_limits(job.one_thread):
+        explain(adapter, job.frame[adapter.input_columns], method=job.method, form=settings.form,
+                background=background, background_size="all", seed=settings.seed)
+    return len(job.frame)
+
+
+@contextmanager
+def _thread_limits(one_thread: bool):
+    if not one_thread:
+        yield
+        return
     _one_thread()
     from threadpoolctl import threadpool_limits
 
     # HistGradientBoosting's predict (OpenMP) and BLAS would otherwise start a thread per core
     with threadpool_limits(limits=1):
-        return _explain_chunk(job, adapter, background, settings, schemas)
+        yield
 
 
 def _explain_chunk(job, adapter, background, settings, schemas) -> ChunkResult:
