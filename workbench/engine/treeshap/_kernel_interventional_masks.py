@@ -52,6 +52,39 @@ def _leaf_mask(o, start, edges, e0, d):
     return mask
 
 
+@numba.njit(cache=True, nogil=True, inline="always")
+def _bits(w):
+    """The number of bits set in w."""
+    size = 0
+    while w != 0:
+        size += 1
+        w &= w - 1
+    return size
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _mark_follows(o, follows, start, stop, bit):
+    """Set ``bit`` in follows[c] for every node c below the root that the row follows to."""
+    for c in range(start + 1, stop):
+        if o[c - start] == 1:
+            follows[c] |= bit
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _group_masks(row, lf, n_unique, unique_mask, unique_count, unique_size):
+    """Leaf lf's distinct fail masks from its rows' masks (sorted), with their counts and
+    sizes; a mask holds no bit beyond the leaf's path, so its size is its bit count."""
+    k = -1
+    for j in range(row.size):
+        if k < 0 or row[j] != unique_mask[lf, k]:
+            k += 1
+            unique_mask[lf, k] = row[j]
+            unique_count[lf, k] = 0
+            unique_size[lf, k] = _bits(row[j])
+        unique_count[lf, k] += 1
+    n_unique[lf] = k + 1
+
+
 @numba.njit(cache=True, nogil=True, parallel=True)
 def background_masks(Z, route, prev_same, tree_start, tree_use, leaf_start, edge_start, edges,
                      max_nodes, follows, n_unique, unique_mask, unique_count, unique_size):
@@ -71,27 +104,13 @@ def background_masks(Z, route, prev_same, tree_start, tree_use, leaf_start, edge
             follows[c] = 0
         for j in range(n_bg):
             _follow(Z[j], tree_start, t, route, prev_same, o)
-            bit = np.int64(1) << j
-            for c in range(start + 1, tree_start[t + 1]):
-                if o[c - start] == 1:
-                    follows[c] |= bit
+            _mark_follows(o, follows, start, tree_start[t + 1], np.int64(1) << j)
             for lf in range(leaf_start[t], leaf_start[t + 1]):
                 d = edge_start[lf + 1] - edge_start[lf]
                 masks[lf - leaf_start[t], j] = _leaf_mask(o, start, edges, edge_start[lf], d)
         for lf in range(leaf_start[t], leaf_start[t + 1]):
-            row = np.sort(masks[lf - leaf_start[t]])
-            k = -1
-            for j in range(n_bg):
-                if k < 0 or row[j] != unique_mask[lf, k]:
-                    k += 1
-                    unique_mask[lf, k] = row[j]
-                    unique_count[lf, k] = 0
-                    size = 0
-                    for s in range(edge_start[lf + 1] - edge_start[lf]):
-                        size += (row[j] >> s) & 1
-                    unique_size[lf, k] = size
-                unique_count[lf, k] += 1
-            n_unique[lf] = k + 1
+            _group_masks(np.sort(masks[lf - leaf_start[t]]), lf, n_unique, unique_mask,
+                         unique_count, unique_size)
 
 
 @numba.njit(cache=True, nogil=True, parallel=True)
@@ -191,10 +210,7 @@ def background_feature_masks(Z, route, parent, prev_same, tree_start, tree_use, 
             follows[c] = 0
         for j in range(n_bg):
             _follow(Z[j], tree_start, t, route, prev_same, o)
-            bit = np.int64(1) << j
-            for c in range(start + 1, tree_start[t + 1]):
-                if o[c - start] == 1:
-                    follows[c] |= bit
+            _mark_follows(o, follows, start, tree_start[t + 1], np.int64(1) << j)
             for lf in range(leaf_start[t], leaf_start[t + 1]):
                 mk = np.int64(0)
                 for s in range(edge_start[lf], edge_start[lf + 1]):
@@ -202,27 +218,10 @@ def background_feature_masks(Z, route, parent, prev_same, tree_start, tree_use, 
                         mk |= np.int64(1) << feature[parent[edges[s]]]
                 masks[lf - leaf_start[t], j] = mk
                 row_mask[lf, j] = mk
-                size = 0
-                while mk != 0:
-                    size += 1
-                    mk &= mk - 1
-                row_size[lf, j] = size
+                row_size[lf, j] = _bits(mk)
         for lf in range(leaf_start[t], leaf_start[t + 1]):
-            row = np.sort(masks[lf - leaf_start[t]])
-            k = -1
-            for j in range(n_bg):
-                if k < 0 or row[j] != unique_mask[lf, k]:
-                    k += 1
-                    unique_mask[lf, k] = row[j]
-                    unique_count[lf, k] = 0
-                    size = 0
-                    w = row[j]
-                    while w != 0:
-                        size += 1
-                        w &= w - 1
-                    unique_size[lf, k] = size
-                unique_count[lf, k] += 1
-            n_unique[lf] = k + 1
+            _group_masks(np.sort(masks[lf - leaf_start[t]]), lf, n_unique, unique_mask,
+                         unique_count, unique_size)
 
 
 @numba.njit(cache=True, nogil=True, parallel=True)
