@@ -94,6 +94,7 @@ def run_batch(model: Path, data: Path, out: Path, workers: int, args) -> dict:
     return {"rows": summary["rows_written"], "seconds": summary["seconds"], "wall": wall,
             "explaining": summary["seconds_explaining"], "processes": summary["processes_used"],
             "cpu": summary["cpu_seconds"], "main_cpu": own["cpu"],
+            "main_cpu_explaining": summary.get("main_cpu_seconds", float("nan")),
             "occupancy": summary.get("worker_seconds", float("nan"))
             / (summary["processes_used"] * summary["seconds_explaining"]),
             "rate": summary["rows_written"] / summary["seconds_explaining"], "peak_mib": peak,
@@ -197,7 +198,9 @@ def report_run(name: str, r: dict, reference: float) -> None:
     print(f"  {'':14s} workers' processor time {r['cpu']:7.1f} s = "
           f"{r['cpu'] / r['explaining']:.2f} cores busy on average; "
           f"{r['rows'] / r['cpu']:,.0f} rows per processor-second; main process "
-          f"{r['main_cpu']:.1f} s; load average (1, 5, 15 min) {r['load']}")
+          f"{r['main_cpu']:.1f} s in all, {r['main_cpu_explaining']:.1f} s while explaining "
+          f"({r['main_cpu_explaining'] / r['explaining']:.2f} of a core); load average "
+          f"(1, 5, 15 min) {r['load']}")
     print(f"  {'':14s} each worker had rows to explain {r['occupancy']:.0%} of the explaining "
           "time (idle workers, whatever the load)")
 
@@ -232,7 +235,9 @@ def summarise(rounds) -> None:
     print(f"  workers' occupancy, two workers, N rows: "
           f"{spread((t['occupancy'] for _, t, _ in rounds), '.0%')}")
     print(f"  main process processor time, s, two workers, N rows: "
-          f"{spread((t['main_cpu'] for _, t, _ in rounds), '.1f')}")
+          f"{spread((t['main_cpu'] for _, t, _ in rounds), '.1f')} in all; while explaining, "
+          f"as a share of one core: "
+          f"{spread((t['main_cpu_explaining'] / t['explaining'] for _, t, _ in rounds), '.3f')}")
 
 
 if __name__ == "__main__":
