@@ -41,8 +41,60 @@ def _window(synchronous: bool):
                          QSettings.Format.IniFormat)
     win = MainWindow(qsettings=settings, synchronous=synchronous)
     win.show()
+    win.ctx.runner.warm_up()  # as ``workbench`` does at launch (no-op when synchronous)
     open_demo(win, rows=5000)
     return app, win
+
+
+class StackSampler:
+    """A watchdog thread: while the main thread has not beaten for ``after_ms``, it samples the
+    main thread's Python stack every few ms (``sys._current_frames``), so the worst gaps can be
+    told apart: our code or painting (the main thread's stack moves), or waiting for Python's
+    lock while a job in a thread holds it (the stack stays in the event loop)."""
+
+    def __init__(self, after_ms: float = 40.0, every_ms: float = 4.0) -> None:
+        self.after, self.every = after_ms / 1000, every_ms / 1000
+        self.last_beat = time.perf_counter()
+        self.samples: list[tuple[float, str]] = []
+        self.main = threading.main_thread().ident
+        self._stop = threading.Event()
+        self._thread = threading.Thread(target=self._run, daemon=True)
+
+    def start(self) -> StackSampler:
+        self._thread.start()
+        return self
+
+    def stop(self) -> None:
+        self._stop.set()
+        self._thread.join(1)
+
+    def beat(self) -> None:
+        self.last_beat = time.perf_counter()
+
+    def _run(self) -> None:
+        while not self._stop.wait(self.every):
+            now = time.perf_counter()
+            if now - self.last_beat < self.after:
+                continue
+            frame = sys._current_frames().get(self.main)
+            self.samples.append((now, _short_stack(frame)))
+
+    def during(self, start: float, end: float, top: int = 3) -> list[tuple[int, str]]:
+        """The most frequent main-thread stacks sampled between ``start`` and ``end``."""
+        from collections import Counter
+
+        counts = Counter(text for t, text in self.samples if start <= t <= end)
+        return counts.most_common(top)
+
+
+def _short_stack(frame, depth: int = 5) -> str:
+    """The innermost ``depth`` frames, as ``file:function``, innermost last."""
+    parts = []
+    while frame is not None:
+        code = frame.f_code
+        parts.append(f"{Path(code.co_filename).stem}:{code.co_name}:{frame.f_lineno}")
+        frame = frame.f_back
+    return " < ".join(parts[:depth])
 
 
 def heartbeat(*, processes: int | None = None) -> dict:
@@ -59,8 +111,10 @@ def heartbeat(*, processes: int | None = None) -> dict:
     for run, seed in (("first", 0), ("again", 1)):
         beats, during, cpu, waited = [], [], [], []
         timer = QTimer()
+        sampler = StackSampler().start()
 
-        def beat(beats=beats, during=during, cpu=cpu, waited=waited):
+        def beat(beats=beats, during=during, cpu=cpu, waited=waited, sampler=sampler):
+            sampler.beat()
             beats.append(time.perf_counter())
             cpu.append(time.thread_time())
             waited.append(_runqueue_wait_s())
@@ -74,6 +128,7 @@ def heartbeat(*, processes: int | None = None) -> dict:
         while win.ctx.runner.running or time.perf_counter() - start < 0.5:
             spin_events(5)  # not app.processEvents(): see workbench.ui.jobs.spin_events
         timer.stop()
+        sampler.stop()
         gaps = np.diff(beats) * 1000
         worst = int(np.argmax(gaps))
         # What the worst gap was made of: the main thread running (our code, Qt, painting), the
@@ -95,10 +150,26 @@ def heartbeat(*, processes: int | None = None) -> dict:
                     "stalls_over_100ms": int((gaps > 100).sum()),
                     "stalls_over_100ms_less_cpu_wait": int((own > 100).sum()),
                     "median_beat_ms": round(float(np.median(gaps)), 1),
-                    "worst_during": during[worst]}
+                    "worst_during": during[worst],
+                    "worst_main_stacks": sampler.during(beats[worst], beats[worst + 1]),
+                    "worst_less_cpu_wait_main_stacks": sampler.during(beats[own_worst],
+                                                                      beats[own_worst + 1]),
+                    "over_100ms": _long_gaps(gaps, own, beats, during, cpu, sampler)}
         win.ctx.focus.update(level="Portfolio")
         win.ctx.runner.wait_idle(600)
     win.close()
+    return out
+
+
+def _long_gaps(gaps, own, beats, during, cpu, sampler) -> list[dict]:
+    """Every gap over 100 ms: its length, less the wait for a processor, the main thread's
+    running time, the jobs running and the main thread's most sampled stack."""
+    out = []
+    for i in np.flatnonzero(gaps > 100):
+        stacks = sampler.during(beats[i], beats[i + 1], top=1)
+        out.append({"ms": round(float(gaps[i]), 1), "less_cpu_wait_ms": round(float(own[i]), 1),
+                    "running_ms": round((cpu[i + 1] - cpu[i]) * 1000, 1), "jobs": during[i],
+                    "stack": stacks[0] if stacks else None})
     return out
 
 
