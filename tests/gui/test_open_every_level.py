@@ -81,6 +81,14 @@ def test_bundled_dataset_every_level(window, cancer_files, tmp_path):
     case = _visit(window, "Case")
     assert case.table.rowCount() == len(features)
     assert case.bar_features and "Contribution bars" in case.bars.title
+    # full feature names: the name column as wide as the longest, the name in the tooltip
+    longest = max(features, key=len)
+    assert case.table.columnWidth(0) >= case.table.fontMetrics().horizontalAdvance(longest)
+    assert [case.table.item(i, 0).toolTip() for i in range(len(features))] == features
+    # the cutoff's sides named by what the model predicts, not as credit decisions
+    assert "the side of" in case.score_label.text()
+    assert "estimated probability of malignant = 1" in case.score_label.text()
+    assert "adverse" not in case.reasons_panel.message.text()
 
     effect = _visit(window, "Effect")
     assert f"Effect curve of {features[0]}" in effect.curve_plot.title
@@ -174,6 +182,9 @@ def test_motor_demo_every_level_with_exposure(window, motor_files):
     case = _visit(window, "Case")
     assert case.table.rowCount() == len(adapter.input_columns)
     assert case.bar_features
+    assert "predicted frequency" in case.score_label.text()
+    reasons = case.reasons_panel.message.text()
+    assert "predicted frequency" in reasons and "adverse" not in reasons, reasons
 
     effect = _visit(window, "Effect")
     assert "Effect curve of driver_age" in effect.curve_plot.title

@@ -35,7 +35,9 @@ def test_panel_shows_reasons_flips_similar_and_cautions(qtbot, case, tmp_path):
     panel = ReasonsPanel()
     qtbot.addWidget(panel)
     panel.set_case(case, actionable=["debt_ratio", "late"])
-    assert "adverse side" in panel.message.text()
+    # the sides of the cutoff named by what the model predicts, not as credit decisions
+    assert "on the side of higher estimated probability of 1" in panel.message.text()
+    assert "adverse" not in panel.message.text()
     texts = [panel.reason_table.item(i, 1).text() for i in range(panel.reason_table.rowCount())]
     assert texts == panel.reasons.texts and 1 <= len(texts) <= 4
     assert any("<b>Debt</b> ratio" in t for t in texts)  # shown as typed, never as markup
@@ -176,3 +178,29 @@ def test_wording_and_not_allowed_marks_live_in_the_project(demo_window, tmp_path
     case.refresh(force=True)
     assert panel.templates.features["annual_income"].display_name == "Yearly pay <b>"
     assert panel.not_allowed == ("region",)
+
+
+def test_a_frequency_model_names_the_cutoff_sides_by_frequency(qtbot):
+    """A claim-frequency model (Poisson regression): neither reasons nor similar rows speak
+    of adverse or favourable decisions."""
+    from sklearn.linear_model import PoissonRegressor
+
+    rng = np.random.default_rng(1)
+    x = pd.DataFrame({"driver_age": rng.uniform(18, 80, 200).round(0),
+                      "power": rng.uniform(40, 200, 200).round(0)})
+    y = pd.Series(rng.poisson(np.exp(-2 + x["power"] / 150)), name="claims")
+    adapter = ModelAdapter(PoissonRegressor().fit(x, y))
+    r = adapter.response(x)
+    row = int(np.argmax(r))
+    att = explain(adapter, x.iloc[[row]], background=x, background_size=50)
+    panel = ReasonsPanel()
+    qtbot.addWidget(panel)
+    panel.set_case(CaseInputs(adapter, x.iloc[[row]], att, x, float(np.median(r)), row=row,
+                              labels=y, key=("freq", row)))
+    message = panel.message.text()
+    assert "on the side of higher predicted frequency" in message, message
+    assert panel.reason_table.rowCount() >= 1
+    similar = panel.similar_message.text()
+    assert "side of higher predicted frequency" in similar, similar
+    for text in (message, similar):
+        assert "adverse" not in text and "favourable" not in text

@@ -148,6 +148,9 @@ def run_app(*, demo: bool = False, snapshot_dir: Path | None = None, model: Path
 
     window = MainWindow()
     window.show()
+    # The worker processes start and import the engine while the files open, so the first
+    # visit to a level does not wait for them (nor does the window do that work itself).
+    window.ctx.runner.warm_up()
     if demo:
         window.statusBar().showMessage("Preparing the demo (built once, then cached)…")
         app.processEvents()

@@ -279,9 +279,12 @@ class JobRunner(QObject):
             self.cancel(job)
 
     def wait_idle(self, timeout_s: float = 60.0) -> bool:
-        """Process events until no job runs (snapshots and tests); False on timeout."""
+        """Process events until no job runs and no shown level has draws waiting (snapshots and
+        tests); False on timeout."""
+        from workbench.ui.draw_queue import draws_waiting
+
         end = time.perf_counter() + timeout_s
-        while self._running:
+        while self._running or draws_waiting():
             if time.perf_counter() > end:
                 return False
             spin_events(20)

@@ -162,8 +162,12 @@ def run_in_worker(job_id: int, slot: int, task: PoolTask):
 
 def warm_up() -> int:
     """Import the engine in a fresh worker (the first real job then starts at once)."""
-    import workbench.engine.attributions  # noqa: F401
-    import workbench.engine.effects  # noqa: F401
+    for name in ("attributions", "effects", "interactions", "importance", "associations",
+                 "shap_interactions", "flips", "similar", "explanation_stability", "compare"):
+        try:
+            importlib.import_module(f"workbench.engine.{name}")
+        except ImportError:  # a part not in this build: its jobs say so themselves
+            pass
 
     return os.getpid()
 
@@ -209,6 +213,29 @@ def association_blocks(frame, columns, *, progress=None, cancel=None):
     clustering = call_engine(engine_function("associations", "cluster_order"), result.strength,
                              result.features)
     return result, clustering
+
+
+def explain_one_row(adapter, row_frame, *, progress=None, cancel=None, **options):
+    """Attributions of one row with one OpenMP thread (more cost than they give for one row)."""
+    from workbench.ui.threads import single_threaded
+
+    with single_threaded():
+        return engine_call("attributions", "explain", adapter, row_frame, progress=progress,
+                           cancel=cancel, **options)
+
+
+def similar_rows_of(adapter, data, row: int, labels=None, *, k: int = 5, progress=None,
+                    cancel=None):
+    """The ``k`` rows most like ``row`` (Gower distance), with the model's score of each."""
+    from workbench.engine.similar import similar_rows
+
+    step(progress, cancel, 0.0, "scoring the data")
+    scores = np.asarray(adapter.response(data), dtype=float)
+    step(progress, cancel, 0.5, "finding similar rows")
+    columns = [c for c in adapter.input_columns if c in data.columns]
+    cats = [c for c in adapter.categorical_columns if c in columns]
+    return similar_rows(data, row, k=k, columns=columns, scores=scores, labels=labels,
+                        categorical=cats)
 
 
 def slow_task(seconds: float = 30.0, *, progress=None, cancel=None) -> str:

@@ -3,8 +3,9 @@
 A self-contained widget for the Case level. It computes nothing itself: every number comes
 from ``workbench.engine.reasons``, ``explanation_stability``, ``flips`` and ``similar``; the
 longer ones (nearest flip, stability, similar rows over the whole data) run as jobs on the
-window's :class:`~workbench.ui.jobs.JobRunner` when one is given, in the calling thread
-otherwise. Clicking a flip option emits :attr:`ReasonsPanel.trial_requested` with its values;
+window's :class:`~workbench.ui.jobs.JobRunner` when one is given (as picklable
+:class:`~workbench.ui.pool_tasks.PoolTask` jobs, so they run in a worker process and leave the
+window's thread alone), in the calling thread otherwise. Clicking a flip option emits :attr:`ReasonsPanel.trial_requested` with its values;
 clicking a similar row emits :attr:`ReasonsPanel.row_requested` with its position.
 """
 
@@ -12,7 +13,6 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-import numpy as np
 import pandas as pd
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import (
@@ -37,11 +37,11 @@ from PySide6.QtWidgets import (
 )
 
 from workbench.engine.errors import InputError
-from workbench.engine.explanation_stability import reason_stability
-from workbench.engine.flips import nearest_flips, score_text
+from workbench.engine.flips import score_text
 from workbench.engine.reasons import ReasonTemplates, reason_statements
-from workbench.engine.similar import similar_rows, similar_summary
+from workbench.engine.similar import similar_summary
 from workbench.report.render import CAUTIONS
+from workbench.ui.pool_tasks import PoolTask, Shared, engine_call, similar_rows_of
 
 NOTE = "color: #555;"
 FLAG = "background: #FFF3E0; padding: 4px; border: 1px solid #E0A060;"
@@ -73,6 +73,37 @@ class CaseInputs:
     id_label: str | None = None
     id_value: object = None
     response: float | None = None  # the case's score when already known (saves a model call)
+
+
+def side_phrases(adapter, adverse_if: str = "above", target: str | None = None) -> tuple[str, str]:
+    """Plain names of the two sides of the cutoff: (the side reasons are stated for, the other).
+
+    "Adverse" and "favourable" suit credit decisions only; for a claim frequency, a price or a
+    diagnosis the sides are named by what the model predicts there.
+    """
+    task = getattr(adapter, "task", "")
+    if task == "count":
+        what = "predicted frequency"
+    elif task == "regression":
+        what = "predicted value"
+    else:
+        positive = getattr(adapter, "positive_class", None)
+        numeric = isinstance(positive, int | float) and not isinstance(positive, bool)
+        named = f"{target} = {positive}" if numeric and target else f"{positive}"
+        what = f"estimated probability of {named}"
+    high, low = f"higher {what}", f"lower {what}"
+    return (high, low) if adverse_if == "above" else (low, high)
+
+
+def plain_sides(text: str, stated: str, other: str) -> str:
+    """The engine's credit wording of the cutoff's sides in ``text`` put in plain words."""
+    for old, new in (("on the adverse side", f"on the side of {stated}"),
+                     ("on the favourable side", f"on the side of {other}"),
+                     ("towards the adverse side", f"towards {stated}"),
+                     ("lies on the adverse side", f"lies on the side of {stated}"),
+                     ("total adverse push", f"total push towards {stated}")):
+        text = text.replace(old, new)
+    return text
 
 
 def _table(headers: list[str], stretch: int | None = None) -> QTableWidget:
@@ -362,9 +393,10 @@ class ReasonsPanel(QWidget):
         self.flag_label.hide()
         if result is None:
             return
-        text = result.message
+        stated, other = self.sides()
+        text = plain_sides(result.message, stated, other)
         if not result.adverse and result.reasons:
-            text += " Shown for information: no reasons are due for a favourable decision."
+            text += f" Shown for information: no reasons are due on the side of {other}."
         self.message.setText(text)
         unstable = set(self.stability.unstable) if self.stability is not None else set()
         table.setRowCount(len(result.reasons))
@@ -375,9 +407,18 @@ class ReasonsPanel(QWidget):
             table.setItem(i, 2, _cell(mark))
         _fit(table)
         if result.flagged_not_allowed:
-            self.flag_label.setText("For the analyst, not for the applicant: "
-                                    + " ".join(f.text for f in result.flagged_not_allowed))
+            self.flag_label.setText(plain_sides(
+                "For the analyst, not for the applicant: "
+                + " ".join(f.text for f in result.flagged_not_allowed), stated, other))
             self.flag_label.show()
+
+    def sides(self) -> tuple[str, str]:
+        """This case's cutoff sides in plain words (see :func:`side_phrases`)."""
+        case = self.case
+        if case is None:
+            return "the cutoff's upper side", "the cutoff's lower side"
+        target = getattr(case.labels, "name", None)
+        return side_phrases(case.adapter, case.adverse_if, target)
 
     def _fill_actionable(self, ticked) -> None:
         case = self.case
@@ -432,11 +473,11 @@ class ReasonsPanel(QWidget):
         max_changes = self.max_changes.value()
         self.flip_message.setText("Searching the nearest flip…")
 
-        def work(progress, cancel):
-            return nearest_flips(case.adapter, case.values_row, case.data, cutoff=case.cutoff,
-                                 adverse_if=case.adverse_if, actionable=actionable,
-                                 immutable=case.not_allowed, max_changes=max_changes,
-                                 seed=case.seed, progress=progress, cancel=cancel)
+        work = PoolTask(engine_call, ("flips", "nearest_flips", Shared(case.adapter),
+                                      case.values_row, Shared(case.data)),
+                        {"cutoff": case.cutoff, "adverse_if": case.adverse_if,
+                         "actionable": actionable, "immutable": case.not_allowed,
+                         "max_changes": max_changes, "seed": case.seed})
 
         key = ("nearest flip", case.key, tuple(actionable), max_changes, case.cutoff, case.adverse_if)
         self._run(key, "Nearest flip of one case", work, self._show_flips)
@@ -449,7 +490,7 @@ class ReasonsPanel(QWidget):
             self.flip_message.setText(str(result) or type(result).__name__)
             return
         self.flips = result
-        self.flip_message.setText(result.message)
+        self.flip_message.setText(plain_sides(result.message, *self.sides()))
         wording = self.case.templates.wording if self.case is not None else None
         table.setRowCount(len(result.options))
         for i, option in enumerate(result.options):
@@ -471,11 +512,11 @@ class ReasonsPanel(QWidget):
         pool = case.background if case.background is not None else case.data
         self.stability_note.setText("Re-explaining the case with other background samples…")
 
-        def work(progress, cancel):
-            return reason_stability(case.adapter, case.values_row, pool, background_size=min(
-                case.background_size, len(pool) - 1), seed=case.seed, k=self.reasons.k,
-                adverse_if=case.adverse_if, not_allowed=case.not_allowed,
-                progress=progress, cancel=cancel)
+        work = PoolTask(engine_call, ("explanation_stability", "reason_stability",
+                                      Shared(case.adapter), case.values_row, Shared(pool)),
+                        {"background_size": min(case.background_size, len(pool) - 1),
+                         "seed": case.seed, "k": self.reasons.k, "adverse_if": case.adverse_if,
+                         "not_allowed": case.not_allowed})
 
         self._run(("reason stability", case.key, case.background_size, case.seed),
                   "Reason stability of one case", work, self._show_stability)
@@ -483,7 +524,8 @@ class ReasonsPanel(QWidget):
     def _show_stability(self, result) -> None:
         if isinstance(result, BaseException):
             self.stability = None
-            self.stability_note.setText(str(result) or type(result).__name__)
+            self.stability_note.setText(plain_sides(str(result) or type(result).__name__,
+                                                    *self.sides()))
             return
         self.stability = result
         unstable = ", ".join(result.unstable) or "none"
@@ -548,12 +590,9 @@ class ReasonsPanel(QWidget):
             return
         self.similar_message.setText("Finding similar rows…")
 
-        def work(progress, cancel):
-            scores = np.asarray(case.adapter.response(case.data), dtype=float)
-            columns = [c for c in case.adapter.input_columns if c in case.data.columns]
-            cats = [c for c in case.adapter.categorical_columns if c in columns]
-            return similar_rows(case.data, case.row, k=5, columns=columns, scores=scores,
-                                labels=case.labels, categorical=cats)
+        labels = Shared(case.labels) if case.labels is not None else None
+        work = PoolTask(similar_rows_of, (Shared(case.adapter), Shared(case.data), int(case.row),
+                                          labels))
 
         # Similar rows are those of the row in the data, whatever its trial values: one job per
         # row, not one per edit (case.key ends with the trial values' digest).
@@ -569,9 +608,9 @@ class ReasonsPanel(QWidget):
             return
         self.similar = list(result)
         case = self.case
-        self.similar_message.setText(similar_summary(
+        self.similar_message.setText(plain_sides(similar_summary(
             self.similar, cutoff=case.cutoff if case else None,
-            adverse_if=case.adverse_if if case else "above"))
+            adverse_if=case.adverse_if if case else "above"), *self.sides()))
         table.setRowCount(len(self.similar))
         for i, s in enumerate(self.similar):
             pred = "—" if s.prediction is None else f"{s.prediction:.4g}"

@@ -28,9 +28,9 @@ from workbench.ui.pool_tasks import (
     association_blocks,
     call_engine,
     engine_call,
+    explain_one_row,
     score_rows,
 )
-from workbench.ui.threads import single_threaded
 from workbench.ui.workspace import Workspace
 
 SAMPLE_ROWS = 1000  # rows explained for the attribution scatter and mean |attribution|
@@ -164,15 +164,13 @@ class Results:
         """Attributions of one row (its values as in the data, or trial values)."""
         try:
             adapter = self._need(slot)
-            explain = _engine_fn("attributions", "explain", "Contribution bars")
+            _engine_fn("attributions", "explain", "Contribution bars")
         except NotAvailable as exc:
             return self._fail(on_error, exc)
-        opts = self._attribution_options()
-
-        def work(progress, cancel):
-            with single_threaded():  # one row: OpenMP threads cost more than they give
-                return call_engine(explain, adapter, row_frame, progress=progress, cancel=cancel,
-                                   **opts)
+        # In a worker process too: in a thread, explaining even one row held Python's lock
+        # for tens of milliseconds at a time.
+        work = PoolTask(explain_one_row, (Shared(adapter), row_frame),
+                        self._shared_attribution_options())
 
         s = self.workspace.settings
         key = self.key("case", slot, None, values=digest, bg=s.background_size, seed=s.seed)
@@ -195,7 +193,14 @@ class Results:
         key = self.key("associations", slot, state, rows=len(rows), columns=tuple(columns))
         return self._request(key, "Feature association", work, on_done, on_error, relevant)
 
-    def importance(self, slot: str, state: FocusState, groups, on_done, on_error=None, relevant=None):
+    def importance(self, slot: str, state: FocusState, groups, on_done, on_error=None,
+                   relevant=None, *, exposure: str | None = None):
+        """Permutation importance over a sample of the segment (``Sampled``).
+
+        ``exposure``: a column of the data holding each row's exposure; the metric is then
+        weighted by it (a frequency model's deviance of observed frequencies), and rows without
+        a positive exposure are left out.
+        """
         try:
             adapter = self._need(slot)
             _engine_fn("importance", "permutation_importance", "Permutation importance")
@@ -207,18 +212,25 @@ class Results:
                 "Permutation importance needs the actual outcome: choose the target in the settings"))
         rows = self.sample_rows(state, IMPORTANCE_ROWS)
         known = y_all.iloc[rows].notna().to_numpy()
+        options = {}
+        if exposure is not None:
+            weights = pd.to_numeric(self.workspace.frame[exposure], errors="coerce").to_numpy(float)
+            known = known & np.isfinite(weights[rows]) & (weights[rows] > 0)
         rows = rows[known]
+        if exposure is not None:
+            options["exposure"] = weights[rows]
         seed = self.workspace.settings.seed
         groups = [list(g) for g in groups] if groups else None
         work = PoolTask(engine_call, ("importance", "permutation_importance", Shared(adapter),
                                       self._rows(rows), Rows(Shared(y_all), rows)),
-                        {"rows": rows, "repeats": 5, "seed": seed, "groups": groups})
+                        {"rows": rows, "repeats": 5, "seed": seed, "groups": groups, **options})
 
         key = self.key("importance", slot, state, rows=len(rows), seed=seed,
                        groups=tuple(map(tuple, groups or ())),
-                       target=self.workspace.settings.target)
-        return self._request(key, f"Permutation importance (model {slot})", work, on_done,
-                             on_error, relevant)
+                       target=self.workspace.settings.target, exposure=exposure)
+        weighted = f", weighted by {exposure}" if exposure is not None else ""
+        return self._request(key, f"Permutation importance{weighted} (model {slot})", work,
+                             on_done, on_error, relevant)
 
     # ---- effects ------------------------------------------------------------------------------------
     def _effect_frame(self, state: FocusState) -> tuple[np.ndarray, Rows]:

@@ -10,6 +10,7 @@ from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QLabel, QVBoxLayout, QWidget
 
 from workbench.ui.context import Context
+from workbench.ui.draw_queue import DrawQueue
 
 _REGISTRY: dict[str, type[Level]] = {}
 
@@ -35,6 +36,7 @@ class Level(QWidget):
         self.ctx = ctx
         self.setObjectName(f"level-{self.name}")
         self._rendered_key = None
+        self.draws = DrawQueue(self, synchronous=ctx.runner.synchronous)
 
     @property
     def state(self):
@@ -55,7 +57,17 @@ class Level(QWidget):
         if not force and key == self._rendered_key:
             return
         self._rendered_key = key
+        self.draws.clear()  # draws queued for the view shown before
         self.render()
+
+    def arrival(self, draw):
+        """``draw(result)`` run from the level's draw queue: one draw per event-loop turn, and
+        only once the level is shown (see :mod:`workbench.ui.draw_queue`)."""
+        return lambda *args: self.draws.later(lambda: draw(*args))
+
+    def showEvent(self, event) -> None:  # noqa: N802 - Qt's name
+        super().showEvent(event)
+        self.draws.resume()
 
     def render(self) -> None:  # pragma: no cover - every level overrides it
         raise NotImplementedError

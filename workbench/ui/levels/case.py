@@ -35,6 +35,7 @@ from workbench.ui.reasons_panel import (
     load_trial_values,
     scrolled,
     show_for_case_level,
+    side_phrases,
 )
 from workbench.ui.results import values_digest
 from workbench.ui.threads import single_threaded
@@ -84,12 +85,17 @@ class CaseLevel(Level):
 
         self.table = QTableWidget(0, 3)
         self.table.setHorizontalHeaderLabels(["feature", "value in data", "trial value"])
-        self.table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Stretch)
+        # The name column as wide as the longest name; the two value columns share the rest.
+        header = self.table.horizontalHeader()
+        header.setSectionResizeMode(0, QHeaderView.ResizeMode.ResizeToContents)
+        for column in (1, 2):
+            header.setSectionResizeMode(column, QHeaderView.ResizeMode.Stretch)
         self.table.verticalHeader().setVisible(False)
         self.table_note = QLabel("Edit the trial values: the case is re-scored and re-explained.")
         self.table_note.setWordWrap(True)
         self.table_note.setStyleSheet("color: #555;")
         left = QWidget()
+        self.table_pane = left
         left_layout = QVBoxLayout(left)
         left_layout.setContentsMargins(0, 0, 0, 0)
         left_layout.addWidget(self.table, 1)
@@ -225,8 +231,10 @@ class CaseLevel(Level):
             value = original[col].iloc[0]
             name = QTableWidgetItem(col)
             name.setFlags(name.flags() & ~Qt.ItemFlag.ItemIsEditable)
+            name.setToolTip(col)
             shown = QTableWidgetItem(_shown(value))
             shown.setFlags(shown.flags() & ~Qt.ItemFlag.ItemIsEditable)
+            shown.setToolTip(f"{col} in the data: {_shown(value)}")
             self.table.setItem(i, 0, name)
             self.table.setItem(i, 1, shown)
             is_text = col in cats or not pd.api.types.is_numeric_dtype(original[col])
@@ -246,6 +254,14 @@ class CaseLevel(Level):
                 self.table.removeCellWidget(i, 2)
                 self.table.setItem(i, 2, QTableWidgetItem("" if pd.isna(value) else _shown(value)))
         self._filling = False
+        self._fit_table_pane()
+
+    def _fit_table_pane(self) -> None:
+        """The values pane at least as wide as the names plus two short value columns."""
+        self.table.resizeColumnToContents(0)
+        names = self.table.columnWidth(0)
+        value_room = QFontMetrics(self.table.font()).horizontalAdvance("0.000000") + 24
+        self.table_pane.setMinimumWidth(min(names + 2 * value_room + 24, 520))
 
     def _item_edited(self, item: QTableWidgetItem) -> None:
         if self._filling or item.column() != 2:
@@ -353,7 +369,9 @@ class CaseLevel(Level):
             lines[0] += (f" with trial values — in the data: {self.data_score:.4g} "
                          f"({len(self.trial)} value(s) changed)")
         lines.append(f"Explained output: {output:.4g} ({adapter.output_units})")
-        lines.append(f"Decision at the cutoff {cutoff:g}: <b>{decision}</b>")
+        high, low = side_phrases(adapter, "above", ws.settings.target)
+        side = high if self.trial_score >= cutoff else low
+        lines.append(f"At the cutoff {cutoff:g}: <b>{decision}</b> (the side of {side})")
         y = ws.labels(self.state.model)
         if y is not None:
             lines.append(f"Label in the data ({ws.settings.target}): {_shown(y.iloc[self.state.row])}")

@@ -35,6 +35,7 @@ from workbench.session.audit import record
 from workbench.session.project import Project
 from workbench.ui.context import project_of
 from workbench.ui.levels.base import Level, register_level
+from workbench.ui.pool_tasks import PoolTask, Shared, engine_call
 
 STATUS_MARKS = {"pass": ("●", "#009E73", "pass"), "warn": ("▲", "#B07A00", "warn"),
                 "fail": ("■", "#D55E00", "fail")}
@@ -253,8 +254,6 @@ class ChecksLevel(Level):
 
     # ---- running ------------------------------------------------------------------------------
     def run_checks(self) -> None:
-        from workbench.engine.checks import run_checks
-
         ws = self.ctx.workspace
         adapter = ws.adapter("A")
         if adapter is None or ws.frame is None:
@@ -269,12 +268,14 @@ class ChecksLevel(Level):
         params = {"expectations": expectations, "group": group, "cutoff": s.cutoff,
                   "seed": s.seed, "target": target, "reference": reference is not None}
 
-        def work(progress, cancel):
-            return run_checks(adapter, frame, target, reference=reference,
-                              expectations=expectations, group=group,
-                              cutoff=s.cutoff if group else None, seed=s.seed,
-                              background_size=s.background_size, ids=ids, progress=progress,
-                              cancel=cancel)
+        # A worker process's job (in a thread it held Python's lock and froze the window).
+        work = PoolTask(engine_call, ("checks", "run_checks", Shared(adapter), Shared(frame),
+                                      target),
+                        {"reference": Shared(reference) if reference is not None else None,
+                         "expectations": expectations, "group": group,
+                         "cutoff": s.cutoff if group else None, "seed": s.seed,
+                         "background_size": s.background_size,
+                         "ids": Shared(ids) if ids is not None else None})
 
         def done(results):
             project = sync_project(project_of(self.ctx), ws)

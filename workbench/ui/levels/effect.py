@@ -118,16 +118,21 @@ class EffectLevel(Level):
             message_item(p.plot, "Computing…")
         rel = self.relevant()
         r = self.ctx.results
-        r.partial_dependence(s.model, s, feature, self._curve_arrived,
-                             lambda e: (self._failed(self.curve_plot, e), self._failed(self.dist_plot, e)), rel)
-        r.ale(s.model, s, feature, self._ale_arrived, lambda e: self._failed(self.ale_plot, e), rel)
-        r.sample_attributions(s.model, s, self._sample_arrived,
-                              lambda e: self._failed(self.scatter_plot, e), rel)
-        r.associations(s.model, s, self._associations_arrived, lambda e: None, rel)
-        r.interactions(s.model, s, self._partners_arrived, lambda e: self._partners_arrived(None), rel)
+        # Every arrival is drawn from the draw queue: one plot per event-loop turn.
+        later = self.arrival
+        r.partial_dependence(s.model, s, feature, later(self._curve_arrived),
+                             later(lambda e: (self._failed(self.curve_plot, e),
+                                              self._failed(self.dist_plot, e))), rel)
+        r.ale(s.model, s, feature, later(self._ale_arrived),
+              later(lambda e: self._failed(self.ale_plot, e)), rel)
+        r.sample_attributions(s.model, s, later(self._sample_arrived),
+                              later(lambda e: self._failed(self.scatter_plot, e)), rel)
+        r.associations(s.model, s, later(self._associations_arrived), lambda e: None, rel)
+        r.interactions(s.model, s, later(self._partners_arrived),
+                       later(lambda e: self._partners_arrived(None)), rel)
         if s.row is not None and s.row < ws.n_rows:
             r.case_attributions(s.model, ws.frame.iloc[[s.row]], values_digest({"row": s.row}),
-                                self._focus_arrived, None, rel)
+                                later(self._focus_arrived), None, rel)
 
     def _failed(self, titled, exc) -> None:
         message_item(titled.plot, str(exc))
@@ -139,9 +144,9 @@ class EffectLevel(Level):
         if self.categorical:
             self.levels = list(curve.grid)
         self._draw_curve()
-        self._draw_distribution()
+        self.draws.later(self._draw_distribution)  # the next plot on the next turn
         if self.sample is not None:
-            self._draw_scatter()
+            self.draws.later(self._draw_scatter)
 
     def _grid_x(self, grid) -> np.ndarray:
         return np.arange(len(grid), dtype=float) if self.categorical else np.asarray(grid, float)

@@ -114,11 +114,15 @@ class PairsLevel(Level):
         self.heading.setText(f"<b>Pairs</b> — model {s.model}" + (f" ({slot.name})" if slot else ""))
         rel = self.relevant()
         r = self.ctx.results
+        later = self.arrival  # drawn from the draw queue, one plot per event-loop turn
         if previous is None:
             message_item(self.matrix_plot.plot, "Computing…")
-            r.associations(s.model, s, self._assoc_arrived, lambda e: self._failed("association", e), rel)
-            r.interactions(s.model, s, self._h_arrived, lambda e: self._failed("h", e), rel)
-            r.shap_interactions(s.model, s, self._shap_arrived, lambda e: self._failed("shap", e), rel)
+            r.associations(s.model, s, later(self._assoc_arrived),
+                           later(lambda e: self._failed("association", e)), rel)
+            r.interactions(s.model, s, later(self._h_arrived),
+                           later(lambda e: self._failed("h", e)), rel)
+            r.shap_interactions(s.model, s, later(self._shap_arrived),
+                                later(lambda e: self._failed("shap", e)), rel)
         else:
             self._draw_matrix()
         if s.pair is None:
@@ -127,9 +131,10 @@ class PairsLevel(Level):
             return
         message_item(self.map_plot.plot, "Computing the pair map…")
         message_item(self.pair_scatter.plot, "Computing attributions…")
-        r.pair_map(s.model, s, s.pair, self._map_arrived, lambda e: message_item(self.map_plot.plot, str(e)), rel)
-        r.sample_attributions(s.model, s, self._sample_arrived,
-                              lambda e: message_item(self.pair_scatter.plot, str(e)), rel)
+        r.pair_map(s.model, s, s.pair, later(self._map_arrived),
+                   later(lambda e: message_item(self.map_plot.plot, str(e))), rel)
+        r.sample_attributions(s.model, s, later(self._sample_arrived),
+                              later(lambda e: message_item(self.pair_scatter.plot, str(e))), rel)
 
     # ---- arrivals --------------------------------------------------------------------------------------
     def _failed(self, kind: str, exc) -> None:

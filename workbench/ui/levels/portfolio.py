@@ -229,6 +229,8 @@ class PortfolioLevel(Level):
         self.segment = SegmentEditor()
         self.summary_label = QLabel("")
         self.summary_label.setWordWrap(True)
+        self.summary_label.setTextFormat(Qt.TextFormat.RichText)
+        self.summary_label.setContentsMargins(0, 0, 16, 0)
         self.summary_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         self.model = PortfolioModel(self)
         self.table = QTableView()
@@ -398,7 +400,9 @@ class PortfolioLevel(Level):
                 parts.append(f"mean score {np.mean(response):.4g}")
                 parts.extend(self._metrics(rows, response))
             parts.append(f"{np.mean(response >= cutoff):.1%} of rows at or above the cutoff {cutoff:g}")
+        # Wrapped, with room left at the right edge; the tooltip lists the figures one a line.
         self.summary_label.setText(" · ".join(parts))
+        self.summary_label.setToolTip("<br>".join(parts))
 
     def _exposure_values(self, rows: np.ndarray) -> np.ndarray | None:
         column = exposure_column(self.ctx)

@@ -4,7 +4,6 @@ absolute attribution, and the importance of blocks of associated features permut
 from __future__ import annotations
 
 import numpy as np
-import pandas as pd
 import pyqtgraph as pg
 from PySide6.QtWidgets import QHBoxLayout, QLabel, QVBoxLayout, QWidget
 
@@ -108,8 +107,10 @@ class RankingLevel(Level):
                         (self.group_plot, "Computing feature association…")):
             message_item(p.plot, text)
         relevant = self.relevant()
-        self.ctx.results.sample_attributions(s.model, s, self._attributions_arrived,
-                                             lambda e: self._failed(self.attribution_plot, e), relevant)
+        later = self.arrival  # drawn from the draw queue, one panel per event-loop turn
+        self.ctx.results.sample_attributions(
+            s.model, s, later(self._attributions_arrived),
+            later(lambda e: self._failed(self.attribution_plot, e)), relevant)
         self.ctx.results.associations(s.model, s, self._associations_arrived,
                                       self._associations_failed, relevant)
 
@@ -129,59 +130,30 @@ class RankingLevel(Level):
         self._request_importance([], lambda e: self._failed(self.importance_plot, e))
 
     def _request_importance(self, groups, on_error) -> None:
+        """A frequency model with an exposure chosen in the Portfolio: the deviance of observed
+        frequencies weighted by that exposure, as its summary figures are."""
         adapter = self.ctx.workspace.adapter(self.state.model)
         column = exposure_column(self.ctx)
-        if adapter is not None and adapter.task == "count" and column is not None:
-            self._request_weighted_importance(groups, column, on_error)
-            return
-        self.ctx.results.importance(self.state.model, self.state, groups, self._importance_arrived,
-                                    on_error, self.relevant())
-
-    def _request_weighted_importance(self, groups, column: str, on_error) -> None:
-        """A frequency model: the deviance of observed frequencies weighted by the exposure
-        chosen in the Portfolio, as its summary figures are (engine ``exposure=``)."""
-        from workbench.engine.importance import permutation_importance
-        from workbench.ui import results as shared
-
-        ws, s, r = self.ctx.workspace, self.state, self.ctx.results
-        y_all = ws.labels(s.model)
-        if y_all is None:
-            on_error(shared.NotAvailable("Permutation importance needs the actual outcome: "
-                                         "choose the target in the settings"))
-            return
-        adapter = ws.adapter(s.model)
-        rows = r.sample_rows(s, shared.IMPORTANCE_ROWS)
-        exposure = pd.to_numeric(ws.frame[column], errors="coerce").to_numpy(float)
-        keep = y_all.iloc[rows].notna().to_numpy() & np.isfinite(exposure[rows]) & (exposure[rows] > 0)
-        rows = rows[keep]
-        frame, y, e = ws.frame.iloc[rows], y_all.iloc[rows], exposure[rows]
-        seed = ws.settings.seed
-        groups = [list(g) for g in groups] if groups else None
-
-        def work(progress, cancel):
-            return shared.Sampled(rows, permutation_importance(
-                adapter, frame, y, repeats=5, seed=seed, groups=groups, exposure=e,
-                progress=progress, cancel=cancel))
-
-        key = r.key("importance", s.model, s, rows=len(rows), seed=seed, exposure=column,
-                    groups=tuple(map(tuple, groups or ())), target=ws.settings.target)
-        self.ctx.runner.request(key, f"Permutation importance, weighted by {column} "
-                                f"(model {s.model})", work, self._importance_arrived,
-                                on_error=on_error, relevant=self.relevant())
+        weighted = adapter is not None and adapter.task == "count" and column is not None
+        self.ctx.results.importance(self.state.model, self.state, groups,
+                                    self.arrival(self._importance_arrived),
+                                    self.arrival(on_error), self.relevant(),
+                                    exposure=column if weighted else None)
 
     def _importance_arrived(self, sampled) -> None:
         self.importance = sampled.result
-        self._draw()
+        self._draw_importance()
+        self.draws.later(lambda: self._draw_groups(self.importance))  # next turn: Qt paints
 
     def _attributions_arrived(self, sampled) -> None:
         self.attributions = sampled.result
-        self._draw()
+        self._draw_attributions()
 
     # ---- drawing ------------------------------------------------------------------------------
-    def _draw(self) -> None:
-        """Each panel sorted by its own figure, largest first, with its own feature labels."""
-        adapter = self.ctx.workspace.adapter(self.state.model)
-        imp, att = self.importance, self.attributions
+    # Each panel sorted by its own figure, largest first, with its own feature labels; each
+    # drawn on its own (one panel per turn of the event loop).
+    def _draw_importance(self) -> None:
+        imp = self.importance
         if imp is not None:
             features = list(imp.features)
             ranked = np.argsort(-np.nan_to_num(imp.mean, nan=-np.inf), kind="stable")
@@ -199,7 +171,10 @@ class RankingLevel(Level):
                 f"{_top_note(len(self.order))})",
                 f"{change} in {metric} (baseline {imp.baseline:.4g})",
                 "feature (most important first)")
-            self._draw_groups(imp)
+
+    def _draw_attributions(self) -> None:
+        adapter = self.ctx.workspace.adapter(self.state.model)
+        att = self.attributions
         if att is not None:
             mean_abs = np.abs(np.asarray(att.values, float)).mean(axis=0)
             ranked = np.argsort(-mean_abs, kind="stable")

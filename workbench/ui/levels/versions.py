@@ -46,6 +46,7 @@ from workbench.ui.plotting import (
     message_item,
     thin_indices,
 )
+from workbench.ui.pool_tasks import PoolTask, Rows, Shared, engine_call
 from workbench.ui.results import values_digest
 
 RESAMPLES = 1000
@@ -323,19 +324,16 @@ class VersionsLevel(Level):
             return
         self._clear("Comparing the two models…")
         self.rows = rows
-        frame = ws.frame.iloc[rows]
-        y = y_all.iloc[rows]
         cut_a, cut_b = self._cutoffs()
         seed = ws.settings.seed
         adapter_a, adapter_b = a.adapter, b.adapter
-        from workbench.engine.compare import compare_versions
-
-        def work(progress, cancel):
-            return compare_versions(adapter_a, adapter_b, frame, y, cutoff_a=cut_a,
-                                    cutoff_b=cut_b, resamples=RESAMPLES, seed=seed,
-                                    importance_repeats=IMPORTANCE_REPEATS,
-                                    importance_rows=IMPORTANCE_ROWS, progress=progress,
-                                    cancel=cancel)
+        # A worker process's job: the model, data and labels go once, the rows as positions.
+        work = PoolTask(engine_call, ("compare", "compare_versions", Shared(adapter_a),
+                                      Shared(adapter_b), Rows(Shared(ws.frame), rows),
+                                      Rows(Shared(y_all), rows)),
+                        {"cutoff_a": cut_a, "cutoff_b": cut_b, "resamples": RESAMPLES,
+                         "seed": seed, "importance_repeats": IMPORTANCE_REPEATS,
+                         "importance_rows": IMPORTANCE_ROWS})
 
         key = ("versions", a.sha256, b.sha256, ws.data_key(), s.segment,
                repr(ws.settings.positive_class), ws.settings.target, cut_a, cut_b, seed,
@@ -724,13 +722,9 @@ class VersionsLevel(Level):
             pick = np.random.default_rng(ws.settings.seed).choice(len(rows), OVERLAY_ROWS,
                                                                   replace=False)
             rows = np.sort(rows[pick])
-        frame = ws.frame.iloc[rows]
-        adapter_a, adapter_b = a.adapter, b.adapter
-        from workbench.engine.compare import effect_overlay
-
-        def work(progress, cancel):
-            return effect_overlay(adapter_a, adapter_b, frame, feature, grid_size=20,
-                                  progress=progress, cancel=cancel)
+        work = PoolTask(engine_call, ("compare", "effect_overlay", Shared(a.adapter),
+                                      Shared(b.adapter), Rows(Shared(ws.frame), rows), feature),
+                        {"grid_size": 20})
 
         key = ("overlay", a.sha256, b.sha256, ws.data_key(), s.segment,
                repr(ws.settings.positive_class), feature, len(rows), ws.settings.seed)
