@@ -56,11 +56,13 @@ class _Finished:
         return first
 
 
-def _cluster(monkeypatch):
+def _cluster(monkeypatch, threads=None):
+    threads = threads or {"a": 1, "b": 1}
     monkeypatch.setattr(executors, "MIN_PIECE_ROWS", 10)
     cluster = executors.DaskCluster(None, None, None, None, workers=2)
     cluster._client, cluster._futures = _Client(), _Finished()
-    cluster._queued, cluster._n_workers, cluster._shared = {"a": 0, "b": 0}, 2, []
+    cluster._queued, cluster._n_workers, cluster._shared = dict.fromkeys(threads, 0), 2, []
+    cluster._room = {a: executors.PIECES_PER_WORKER_QUEUED * n for a, n in threads.items()}
     return cluster
 
 
@@ -85,3 +87,11 @@ def test_no_worker_is_given_more_than_its_queue_holds(monkeypatch):
         cluster.submit(_chunk(index))
     assert max(cluster._queued.values()) == executors.PIECES_PER_WORKER_QUEUED
     assert len(cluster._waiting) == 12 - 2 * executors.PIECES_PER_WORKER_QUEUED
+
+
+def test_a_worker_with_more_threads_holds_more_pieces(monkeypatch):
+    cluster = _cluster(monkeypatch, threads={"a": 1, "b": 3})
+    for index in range(3):
+        cluster.submit(_chunk(index))
+    assert cluster._queued == {"a": executors.PIECES_PER_WORKER_QUEUED,
+                               "b": 3 * executors.PIECES_PER_WORKER_QUEUED}

@@ -12,7 +12,7 @@ size of the input (and whatever the number of workers).
   rows before the first chunk (:meth:`DaskCluster.warm_up`: imports and compiled kernels), so
   the first chunk does not wait for the slowest start. Each chunk is cut into pieces, about two
   per worker (never below ``MIN_PIECE_ROWS`` rows), and the pieces wait in this process until a
-  worker has fewer than ``PIECES_PER_WORKER_QUEUED`` of them: each worker pulls work at its own
+  worker has fewer than ``PIECES_PER_WORKER_QUEUED`` per thread: each worker pulls work at its own
   speed, so a worker that shares its core with something else does not hold the others up (with
   pieces dealt out in turn, the fast worker ran dry while the slow one finished its share). A
   worker keeps numba, OpenMP and BLAS to one thread so that workers do not fight over the
@@ -105,6 +105,7 @@ class DaskCluster:
         self._finished: deque[ChunkResult] = deque()
         self._waiting: deque[ChunkJob] = deque()  # pieces no worker has been given yet
         self._queued: dict[str, int] = {}  # worker address -> pieces given and not returned
+        self._room: dict[str, int] = {}  # worker address -> pieces it may hold at once
         self._given: dict = {}  # future -> the worker it was given to
         self._n_workers = 1
         self.in_flight = CHUNKS_IN_FLIGHT
@@ -127,11 +128,14 @@ class DaskCluster:
             self.__exit__(None, None, None)
             where = self._scheduler or "127.0.0.1"
             raise InputError(f"could not reach a Dask scheduler at {where} ({exc})") from None
-        self._queued = {address: 0 for address in self._client.scheduler_info().get("workers", {})}
-        if not self._queued:
+        found = self._client.scheduler_info().get("workers", {})
+        if not found:
             self.__exit__(None, None, None)
             raise InputError(f"the Dask scheduler at {self._scheduler} has no workers")
-        self._n_workers = len(self._queued)
+        threads = {address: max(int(info.get("nthreads", 1)), 1) for address, info in found.items()}
+        self._room = {address: PIECES_PER_WORKER_QUEUED * n for address, n in threads.items()}
+        self._queued = dict.fromkeys(threads, 0)
+        self._n_workers = sum(threads.values())  # pieces are cut for every thread
         self._shared = [self._client.scatter(x, broadcast=True) for x in self._args]
         self._futures = distributed.as_completed()
         if self._on_start is not None:
@@ -164,10 +168,10 @@ class DaskCluster:
         self._hand_out()
 
     def _hand_out(self) -> None:
-        """Give waiting pieces to the workers with room in their queue, least loaded first."""
+        """Give waiting pieces to the workers with room in their queue, most room first."""
         while self._waiting:
-            address = min(self._queued, key=self._queued.get)
-            if self._queued[address] >= PIECES_PER_WORKER_QUEUED:
+            address = max(self._queued, key=lambda a: self._room[a] - self._queued[a])
+            if self._queued[address] >= self._room[address]:
                 return
             piece = self._waiting.popleft()
             # hashing the piece costs time and gains nothing; the data goes where it is used
