@@ -20,7 +20,7 @@ from PySide6.QtWidgets import (
 
 from workbench.ui.jobs import Job, JobRunner
 
-ROWS_SHOWN = 3
+ROWS_SHOWN = 2
 ROW_HEIGHT = 28
 
 
@@ -74,6 +74,7 @@ class JobArea(QWidget):
         outer.setContentsMargins(2, 2, 2, 2)
         outer.addWidget(self.scroll)
         outer.addWidget(self.last)
+        self.setFixedHeight(self.sizeHint().height())  # the dock no taller than its rows
         runner.job_started.connect(self._started)
         runner.job_progressed.connect(self._progressed)
         runner.job_ended.connect(self._ended)

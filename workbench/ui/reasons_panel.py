@@ -630,7 +630,7 @@ def scrolled(panel: QWidget) -> QScrollArea:
     area.setWidgetResizable(True)
     area.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
     area.setWidget(panel)
-    area.setMinimumWidth(320)
+    area.setMinimumWidth(300)
     return area
 
 

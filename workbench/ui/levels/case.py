@@ -41,7 +41,8 @@ from workbench.ui.results import values_digest
 from workbench.ui.threads import single_threaded
 
 TOP_BARS = 12
-LABEL_CHARS = 30
+LABEL_CHARS = 26
+REASONS_WIDTH = 310
 CASE_CAUTION = (
     "<b>Read with care.</b> Contribution bars describe how this model arrived at its score for "
     "these values: they describe the model, not the world, and not the person behind the row. "
@@ -140,7 +141,10 @@ class CaseLevel(Level):
         self.reasons_panel.not_allowed_changed.connect(self._keep_not_allowed)
         self._applied_project = None
         split.addWidget(scrolled(self.reasons_panel))
-        split.setSizes([380, 900, 420])
+        split.setSizes([330, 900, 380])
+        self.split = split
+        self._shared_width = False
+        split.setStretchFactor(1, 1)  # a wider window widens the bars first
         layout = QVBoxLayout(self)
         layout.addLayout(top)
         layout.addWidget(split, 1)
@@ -260,8 +264,20 @@ class CaseLevel(Level):
         """The values pane at least as wide as the names plus two short value columns."""
         self.table.resizeColumnToContents(0)
         names = self.table.columnWidth(0)
-        value_room = QFontMetrics(self.table.font()).horizontalAdvance("0.000000") + 24
-        self.table_pane.setMinimumWidth(min(names + 2 * value_room + 24, 520))
+        value_room = QFontMetrics(self.table.font()).horizontalAdvance("value in data") + 14
+        self.table_pane.setMinimumWidth(min(names + 2 * value_room + 20, 480))
+        self._share_width()
+
+    def _share_width(self) -> None:
+        """Once, when the panes first have a width: the values and reasons panes as narrow as
+        they fit, the rest to the contribution bars (their labels take much of it)."""
+        total = sum(self.split.sizes())
+        if self._shared_width or total <= 0:
+            return
+        self._shared_width = True
+        left = self.table_pane.minimumWidth()
+        right = REASONS_WIDTH
+        self.split.setSizes([left, max(total - left - right, 200), right])
 
     def _item_edited(self, item: QTableWidgetItem) -> None:
         if self._filling or item.column() != 2:
@@ -441,7 +457,7 @@ class CaseLevel(Level):
         method = getattr(self.contributions, "method", "")
         self.bars.set_text(
             f"Contribution bars: what moved this case's score ({method}{extra})",
-            f"contribution to the {adapter.output_units}", None)
+            adapter.output_units, None)  # the units alone: a longer title was cut
         self.bars.title_text = self.bars.title
 
     @staticmethod
@@ -480,7 +496,7 @@ class CaseLevel(Level):
         pad = (hi - lo) * 0.08 or 0.5
         plot.setXRange(lo - pad, hi + pad, padding=0)
         self.running.set_text("Running total: base value to this case, cutoff marked",
-                              f"{adapter.output_units}", None)
+                              adapter.output_units, None)
         self.cutoff_output = cutoff_output
 
     # ---- hover and clicks -------------------------------------------------------------------------
@@ -514,6 +530,11 @@ class CaseLevel(Level):
 
     def open_effect(self, feature: str) -> None:
         self.go(feature=feature, level="Effect")
+
+    def showEvent(self, event) -> None:  # noqa: N802 - Qt's name
+        super().showEvent(event)
+        if self.table.rowCount():
+            self._share_width()
 
     def _row_typed(self, row: int) -> None:
         if self.ctx.workspace.frame is not None and row != self.state.row:
