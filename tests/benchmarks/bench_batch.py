@@ -179,14 +179,14 @@ def main() -> None:
         print(f"reference: explain() in one process, one thread: {reference:,.0f} rows/s")
         rounds = []
         for r in range(args.repeat):
-            one = run_batch(model, small, tmp / "o1.parquet", 1, args)
-            two = run_batch(model, small, tmp / "o2.parquet", 2, args)
-            double = run_batch(model, large, tmp / "o3.parquet", 2, args)
-            rounds.append((one, two, double))
             print(f"round {r + 1} of {args.repeat}")
-            for name, x in (("1 worker,  N", one), ("2 workers, N", two),
-                            ("2 workers, 2N", double)):
-                report_run(name, x, reference)
+            runs = []
+            for name, path, out, workers in (("1 worker,  N", small, "o1", 1),
+                                             ("2 workers, N", small, "o2", 2),
+                                             ("2 workers, 2N", large, "o3", 2)):
+                runs.append(run_batch(model, path, tmp / f"{out}.parquet", workers, args))
+                report_run(name, runs[-1], reference)  # as it ends: a long run may be stopped
+            rounds.append(tuple(runs))
         summarise(rounds)
 
 
