@@ -11,7 +11,8 @@ each figure as min / median / max over the rounds with the load average around e
 * rows per second while explaining (from the first chunk sent to the last part written, so the
   fixed costs of starting workers, drawing the background and assembling are left out) with
   one worker and with two (target: two workers >= 1.7x one worker);
-* the time for twice the rows with two workers (target: at most 2x the time, + 10 %);
+* the time for twice the rows with two workers (target: at most 2x the time, + 10 %), on N and
+  2N rows, or on N/2 and N with ``--double-from-half`` (half the time for a 1,000,000-row run);
 * the peak resident memory of the main process (ru_maxrss of the command's own process), for
   N and 2N rows: bounded by the chunk size, so it should not grow with the rows;
 * in one process with the champion (linear, fast enough for many rows): the peak for N and 2N
@@ -41,9 +42,9 @@ MAKER = """
 import sys
 from demo_models.lending import generate_lending
 rows = int(sys.argv[1])
-_, current = generate_lending(7, n_reference=1_000, n_current=2 * rows)
-current.iloc[:rows].to_parquet(sys.argv[2], index=False, row_group_size=100_000)
-current.to_parquet(sys.argv[3], index=False, row_group_size=100_000)
+_, current = generate_lending(7, n_reference=1_000, n_current=rows)
+for path, n in zip(sys.argv[2::2], sys.argv[3::2]):  # the first n rows of one book
+    current.iloc[:int(n)].to_parquet(path, index=False, row_group_size=100_000)
 print(len(current.columns))
 """
 
@@ -132,8 +133,8 @@ def memory_check(rows: int, chunk_rows: int, tmp: Path) -> None:
 
     model = ensure_demo()["lending_champion"]
     small, large = tmp / "mem_n.parquet", tmp / "mem_2n.parquet"
-    subprocess.check_call([sys.executable, "-c", MAKER, str(rows), str(small), str(large)],
-                          stdout=subprocess.DEVNULL)
+    subprocess.check_call([sys.executable, "-c", MAKER, str(2 * rows), str(small), str(rows),
+                           str(large), str(2 * rows)], stdout=subprocess.DEVNULL)
     whole = float(subprocess.check_output([sys.executable, "-c", WHOLE_FILE, str(large)]))
     base = float(subprocess.check_output([sys.executable, "-c", BASELINE]))
     print(f"memory, in one process, champion, chunks of {chunk_rows:,} rows; interpreter and "
@@ -157,6 +158,9 @@ def main() -> None:
     parser.add_argument("--skip-workers", action="store_true", help="only the memory check")
     parser.add_argument("--repeat", type=int, default=1,
                         help="rounds of (1 worker N, 2 workers N, 2 workers 2N), interleaved")
+    parser.add_argument("--double-from-half", action="store_true",
+                        help="the doubling check on N/2 and N rows instead of N and 2N (half "
+                             "the time; one and two workers are still timed on N rows)")
     args = parser.parse_args()
     sys.stdout.reconfigure(line_buffering=True)  # a redirected log shows each run as it ends
     print(f"load average (1, 5, 15 min) at the start: {load()}; {os.cpu_count()} processors")
@@ -169,24 +173,29 @@ def main() -> None:
             memory_check(args.memory_rows, args.chunk_rows, tmp)
         if args.skip_workers:
             return
-        small, large = tmp / "book_n.parquet", tmp / "book_2n.parquet"
-        cols = subprocess.check_output([sys.executable, "-c", MAKER, str(args.rows), str(small),
-                                        str(large)]).decode().strip()
-        print(f"{args.rows:,} and {2 * args.rows:,} rows x {cols} columns; background "
+        other_rows = args.rows // 2 if args.double_from_half else 2 * args.rows
+        small, other = tmp / "book_n.parquet", tmp / f"book_{other_rows}.parquet"
+        cols = subprocess.check_output(
+            [sys.executable, "-c", MAKER, str(max(args.rows, other_rows)), str(small),
+             str(args.rows), str(other), str(other_rows)]).decode().strip()
+        print(f"{args.rows:,} and {other_rows:,} rows x {cols} columns; background "
               f"{args.background}; chunks of {args.chunk_rows:,} rows")
         reference = float(subprocess.check_output(
             [sys.executable, "-c", REFERENCE, str(model), str(small), str(args.background)]))
         print(f"reference: explain() in one process, one thread: {reference:,.0f} rows/s")
         rounds = []
+        other_name = "2 workers, N/2" if args.double_from_half else "2 workers, 2N"
         for r in range(args.repeat):
             print(f"round {r + 1} of {args.repeat}")
             runs = []
             for name, path, out, workers in (("1 worker,  N", small, "o1", 1),
                                              ("2 workers, N", small, "o2", 2),
-                                             ("2 workers, 2N", large, "o3", 2)):
+                                             (other_name, other, "o3", 2)):
                 runs.append(run_batch(model, path, tmp / f"{out}.parquet", workers, args))
                 report_run(name, runs[-1], reference)  # as it ends: a long run may be stopped
-            rounds.append(tuple(runs))
+            one, two, third = runs
+            # (one worker, two workers on N rows, two workers on the smaller, on the larger)
+            rounds.append((one, two, *((third, two) if args.double_from_half else (two, third))))
         summarise(rounds)
 
 
@@ -212,33 +221,34 @@ def spread(values, fmt: str) -> str:
 
 
 def summarise(rounds) -> None:
-    """Every figure the issue asks for, over the rounds."""
+    """Every figure the issue asks for, over the rounds: each round is (one worker on N rows,
+    two workers on N rows, two workers on the smaller and on the larger file of the doubling)."""
     print(f"over {len(rounds)} round(s):")
-    print(f"  rows per second, one worker:  {spread((o['rate'] for o, _, _ in rounds), ',.0f')}")
-    print(f"  rows per second, two workers: {spread((t['rate'] for _, t, _ in rounds), ',.0f')}")
+    print(f"  rows per second, one worker:  {spread((o['rate'] for o, *_ in rounds), ',.0f')}")
+    print(f"  rows per second, two workers: {spread((t['rate'] for _, t, *_ in rounds), ',.0f')}")
     print(f"  two workers / one worker throughput (same round): "
-          f"{spread((t['rate'] / o['rate'] for o, t, _ in rounds), '.2f')} (target >= 1.7)")
-    print(f"  time for N rows, two workers (explaining, s): "
-          f"{spread((t['explaining'] for _, t, _ in rounds), '.1f')}")
-    print(f"  time for 2N rows, two workers (explaining, s): "
-          f"{spread((d['explaining'] for _, _, d in rounds), '.1f')}")
-    print(f"  time for 2N / time for N (same round): "
-          f"{spread((d['explaining'] / t['explaining'] for _, t, d in rounds), '.2f')} "
+          f"{spread((t['rate'] / o['rate'] for o, t, *_ in rounds), '.2f')} (target >= 1.7)")
+    lo, hi = rounds[0][2]["rows"], rounds[0][3]["rows"]
+    print(f"  time for {lo:,} rows, two workers (explaining, s): "
+          f"{spread((a['explaining'] for *_, a, _ in rounds), '.1f')}")
+    print(f"  time for {hi:,} rows, two workers (explaining, s): "
+          f"{spread((b['explaining'] for *_, b in rounds), '.1f')}")
+    print(f"  time for twice the rows / time for the rows (same round): "
+          f"{spread((b['explaining'] / a['explaining'] for *_, a, b in rounds), '.2f')} "
           "(target <= 2.2)")
     print(f"  rows per processor-second, two workers / one (same round): "
-          f"{spread(((t['rows'] / t['cpu']) / (o['rows'] / o['cpu']) for o, t, _ in rounds), '.2f')}"
+          f"{spread(((t['rows'] / t['cpu']) / (o['rows'] / o['cpu']) for o, t, *_ in rounds), '.2f')}"
           " (1.0 = each core as fast with two workers as with one)")
-    print(f"  main process peak memory, MiB, N rows: "
-          f"{spread((t['peak_mib'] for _, t, _ in rounds), '.0f')}; 2N rows: "
-          f"{spread((d['peak_mib'] for _, _, d in rounds), '.0f')}; "
-          f"2N / N: {spread((d['peak_mib'] / t['peak_mib'] for _, t, d in rounds), '.2f')}")
+    print(f"  main process peak memory, MiB, {lo:,} rows: "
+          f"{spread((a['peak_mib'] for *_, a, _ in rounds), '.0f')}; {hi:,} rows: "
+          f"{spread((b['peak_mib'] for *_, b in rounds), '.0f')}; "
+          f"ratio: {spread((b['peak_mib'] / a['peak_mib'] for *_, a, b in rounds), '.2f')}")
     print(f"  workers' occupancy, two workers, N rows: "
-          f"{spread((t['occupancy'] for _, t, _ in rounds), '.0%')}")
+          f"{spread((t['occupancy'] for _, t, *_ in rounds), '.0%')}")
     print(f"  main process processor time, s, two workers, N rows: "
-          f"{spread((t['main_cpu'] for _, t, _ in rounds), '.1f')} in all; while explaining, "
+          f"{spread((t['main_cpu'] for _, t, *_ in rounds), '.1f')} in all; while explaining, "
           f"as a share of one core: "
-          f"{spread((t['main_cpu_explaining'] / t['explaining'] for _, t, _ in rounds), '.3f')}")
-
+          f"{spread((t['main_cpu_explaining'] / t['explaining'] for _, t, *_ in rounds), '.3f')}")
 
 if __name__ == "__main__":
     main()
