@@ -14,7 +14,7 @@ import weakref
 from collections import deque
 from collections.abc import Callable
 
-from PySide6.QtCore import QObject, QTimer
+from PySide6.QtCore import QEvent, QObject, QTimer
 from PySide6.QtWidgets import QWidget
 
 GAP_MS = 1  # a timer, not 0: Qt's posted paint requests are handled before it fires
@@ -34,7 +34,13 @@ class DrawQueue(QObject):
         self._timer.setSingleShot(True)
         self._timer.setInterval(GAP_MS)
         self._timer.timeout.connect(self._run_one)
+        widget.installEventFilter(self)  # shown again: the waiting draws run
         _queues.add(self)
+
+    def eventFilter(self, watched, event) -> bool:  # noqa: N802 - Qt's name
+        if watched is self.widget and event.type() == QEvent.Type.Show:
+            self.resume()
+        return False
 
     def later(self, draw: Callable[[], None]) -> None:
         if self.synchronous:

@@ -65,10 +65,6 @@ class Level(QWidget):
         only once the level is shown (see :mod:`workbench.ui.draw_queue`)."""
         return lambda *args: self.draws.later(lambda: draw(*args))
 
-    def showEvent(self, event) -> None:  # noqa: N802 - Qt's name
-        super().showEvent(event)
-        self.draws.resume()
-
     def render(self) -> None:  # pragma: no cover - every level overrides it
         raise NotImplementedError
 
