@@ -204,3 +204,32 @@ def test_a_frequency_model_names_the_cutoff_sides_by_frequency(qtbot):
     assert "side of higher predicted frequency" in similar, similar
     for text in (message, similar):
         assert "adverse" not in text and "favourable" not in text
+
+
+def test_panel_jobs_are_picklable_pool_tasks(qtbot, case):
+    """Nearest flip, stability and similar rows go to worker processes: picklable tasks (no
+    closures), and what they return is what the panel shows."""
+    import pickle
+
+    from workbench.ui.jobs import JobRunner
+    from workbench.ui.pool_tasks import PoolTask
+
+    runner = JobRunner(synchronous=True)
+    sent = []
+    request = runner.request
+    runner.request = lambda key, title, fn, *a, **k: (sent.append((title, fn)),
+                                                      request(key, title, fn, *a, **k))[1]
+    panel = ReasonsPanel(runner)
+    qtbot.addWidget(panel)
+    panel.set_case(case, actionable=["debt_ratio", "late"])
+    panel.find_flips()
+    panel.check_stability()
+    titles = [t for t, _fn in sent]
+    assert titles == ["Similar rows of one case", "Nearest flip of one case",
+                      "Reason stability of one case"]
+    for _title, fn in sent:
+        assert isinstance(fn, PoolTask)
+        pickle.loads(pickle.dumps(fn))
+    assert panel.similar_table.rowCount() == 5
+    assert panel.flip_table.rowCount() == len(panel.flips.options) >= 1
+    assert "other background samples" in panel.stability_note.text()
