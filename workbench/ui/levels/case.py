@@ -264,7 +264,8 @@ class CaseLevel(Level):
         """The values pane at least as wide as the names plus two short value columns."""
         self.table.resizeColumnToContents(0)
         names = self.table.columnWidth(0)
-        value_room = QFontMetrics(self.table.font()).horizontalAdvance("value in data") + 14
+        metrics = QFontMetrics(self.table.font())
+        value_room = max(metrics.horizontalAdvance("0.000000"), metrics.horizontalAdvance("trial value")) + 12
         self.table_pane.setMinimumWidth(min(names + 2 * value_room + 20, 480))
         self._share_width()
 
@@ -272,8 +273,8 @@ class CaseLevel(Level):
         """Once, when the panes first have a width: the values and reasons panes as narrow as
         they fit, the rest to the contribution bars (their labels take much of it)."""
         total = sum(self.split.sizes())
-        if self._shared_width or total <= 0:
-            return
+        if self._shared_width or total <= 0 or not self.isVisible():
+            return  # a hidden level's splitter has no final width yet
         self._shared_width = True
         left = self.table_pane.minimumWidth()
         right = REASONS_WIDTH
