@@ -80,6 +80,20 @@ def test_cancel_before_the_worker_starts_it(pool_runner, qtbot):
     qtbot.waitUntil(lambda: outcomes == ["cancelled", "cancelled"], timeout=60_000)
 
 
+def test_a_quick_task_does_not_wait_behind_a_heavy_one(pool_runner, qtbot):
+    """One heavy worker, busy for a minute: a quick task (one row after an edit) still ends."""
+    heavy = pool_runner.request(("heavy",), "heavy", PoolTask(slow_task, (60.0,)), lambda r: None)
+    qtbot.waitUntil(lambda: heavy.fraction > 0, timeout=60_000)
+    done = []
+    edit = pool_runner.request(("edit",), "edit", PoolTask(slow_task, (0.05,), quick=True),
+                               done.append)
+    assert edit.where == "process"
+    qtbot.waitUntil(lambda: done == ["finished"], timeout=60_000)
+    assert heavy in pool_runner.running and not heavy.future.done()
+    pool_runner.cancel(heavy)
+    qtbot.waitUntil(lambda: not pool_runner.running, timeout=10_000)
+
+
 def test_result_for_a_moved_focus_is_dropped_but_cached(pool_runner, qtbot):
     shown = []
     pool_runner.request(("quick",), "quick", PoolTask(slow_task, (0.05,)), shown.append,

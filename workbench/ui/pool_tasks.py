@@ -60,11 +60,16 @@ class Rows:
 
 @dataclass(frozen=True)
 class PoolTask:
-    """``fn(*args, progress=..., cancel=..., **kwargs)`` with ``fn`` importable without Qt."""
+    """``fn(*args, progress=..., cancel=..., **kwargs)`` with ``fn`` importable without Qt.
+
+    ``quick``: a small job the user waits for (one row's contributions after an edit); it runs
+    on a worker of its own, so it never queues behind heavy jobs.
+    """
 
     fn: Callable
     args: tuple = ()
     kwargs: dict = field(default_factory=dict)
+    quick: bool = False
 
     def __call__(self, progress, cancel):
         args = tuple(resolve(a) for a in self.args)
@@ -82,7 +87,7 @@ class PoolTask:
             return value
 
         return PoolTask(self.fn, tuple(swap(a) for a in self.args),
-                        {k: swap(v) for k, v in self.kwargs.items()})
+                        {k: swap(v) for k, v in self.kwargs.items()}, self.quick)
 
 
 # ---- inputs, where the task runs ---------------------------------------------------------------
@@ -120,13 +125,14 @@ WORKER_NICENESS = 5  # the window's own process comes first (at 10 the workers g
 # processor time while other programs kept the processors busy)
 
 
-def init_worker(flags, progress_queue, openmp_threads: int, window_pid: int) -> None:
+def init_worker(flags, progress_queue, openmp_threads: int, window_pid: int,
+                niceness: int = WORKER_NICENESS) -> None:
     """Runs once in each worker process."""
     global _flags, _progress_queue
     _flags, _progress_queue = flags, progress_queue
     threading.Thread(target=_leave_with_window, args=(window_pid,), daemon=True).start()
     try:
-        os.nice(WORKER_NICENESS)
+        os.nice(niceness)
     except (AttributeError, OSError):
         pass
     try:

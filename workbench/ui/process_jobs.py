@@ -9,7 +9,9 @@ A :class:`ProcessLane` runs :class:`~workbench.ui.pool_tasks.PoolTask` jobs on a
 ``ProcessPoolExecutor`` of 'spawn' workers (Qt's threads make 'fork' unsafe); a worker
 leaves when the window's process is gone. Shared inputs are written to a private folder once and read once per worker. Progress
 comes back through a multiprocessing queue; cancelling sets a byte in shared memory that the
-worker's ``cancel`` reads at every engine step.
+worker's ``cancel`` reads at every engine step. Quick tasks (``PoolTask.quick``: one row's
+contributions after an edit) go to one more worker of their own, at the window's priority, so
+an edit is answered while H-statistics keep the other workers busy.
 """
 
 from __future__ import annotations
@@ -29,6 +31,7 @@ from workbench.ui import pool_tasks
 from workbench.ui.pool_tasks import PoolTask, Shared, SharedRef
 
 SLOTS = 256  # cancel flags; a slot is reused once its job has ended
+QUICK_NICENESS = 0  # the quick worker runs ahead of the heavy ones (niceness 5)
 SHARED_LIMIT = 12  # inputs kept on disk for the workers (files of the oldest are removed)
 
 
@@ -50,6 +53,7 @@ class ProcessLane:
         self.workers = workers or default_workers()
         self._ctx = _context()
         self._executor: ProcessPoolExecutor | None = None
+        self._quick: ProcessPoolExecutor | None = None  # one worker for quick tasks
         self._flags = self._ctx.RawArray("b", SLOTS)
         self.progress = self._ctx.Queue()
         self._free = list(range(SLOTS))
@@ -61,19 +65,34 @@ class ProcessLane:
         self._lock = threading.Lock()
 
     # ---- pool ------------------------------------------------------------------------------------
-    def _pool(self) -> ProcessPoolExecutor:
+    def _pool(self, quick: bool = False) -> ProcessPoolExecutor:
+        if quick:
+            if self._quick is None:
+                self._quick = self._start(1, threads=1, niceness=QUICK_NICENESS)
+            return self._quick
         if self._executor is None:
             threads = max(1, (os.cpu_count() or 1) // self.workers)
-            self._executor = ProcessPoolExecutor(
-                max_workers=self.workers, mp_context=self._ctx, initializer=pool_tasks.init_worker,
-                initargs=(self._flags, self.progress, threads, os.getpid()))
+            self._executor = self._start(self.workers, threads=threads,
+                                         niceness=pool_tasks.WORKER_NICENESS)
         return self._executor
+
+    def _start(self, workers: int, *, threads: int, niceness: int) -> ProcessPoolExecutor:
+        return ProcessPoolExecutor(
+            max_workers=workers, mp_context=self._ctx, initializer=pool_tasks.init_worker,
+            initargs=(self._flags, self.progress, threads, os.getpid(), niceness))
+
+    def _forget(self, quick: bool) -> None:
+        if quick:
+            self._quick = None
+        else:
+            self._executor = None
 
     def warm_up(self) -> None:
         """Start the workers and import the engine in them, without waiting."""
         pool = self._pool()
         for _ in range(self.workers):
             pool.submit(pool_tasks.warm_up)
+        self._pool(quick=True).submit(pool_tasks.warm_up)
 
     def _ref(self, shared: Shared) -> SharedRef:
         ident = id(shared.obj)
@@ -98,10 +117,10 @@ class ProcessLane:
             self._slot_of[job_id] = slot
         self._flags[slot] = 0
         try:
-            future = self._pool().submit(pool_tasks.run_in_worker, job_id, slot, task)
+            future = self._pool(task.quick).submit(pool_tasks.run_in_worker, job_id, slot, task)
         except BrokenProcessPool:
-            self._executor = None  # a worker died (killed, out of memory): a fresh pool
-            future = self._pool().submit(pool_tasks.run_in_worker, job_id, slot, task)
+            self._forget(task.quick)  # a worker died (killed, out of memory): a fresh pool
+            future = self._pool(task.quick).submit(pool_tasks.run_in_worker, job_id, slot, task)
         future.add_done_callback(lambda _f, j=job_id: self._release(j))
         return future
 
@@ -130,9 +149,10 @@ class ProcessLane:
     def shutdown(self) -> None:
         for slot in list(self._slot_of.values()):
             self._flags[slot] = 1
-        if self._executor is not None:
-            self._executor.shutdown(wait=False, cancel_futures=True)
-            self._executor = None
+        for pool in (self._executor, self._quick):
+            if pool is not None:
+                pool.shutdown(wait=False, cancel_futures=True)
+        self._executor = self._quick = None
         shutil.rmtree(self._folder, ignore_errors=True)
 
 

@@ -170,7 +170,7 @@ class Results:
         # In a worker process too: in a thread, explaining even one row held Python's lock
         # for tens of milliseconds at a time.
         work = PoolTask(explain_one_row, (Shared(adapter), row_frame),
-                        self._shared_attribution_options())
+                        self._shared_attribution_options(), quick=True)
 
         s = self.workspace.settings
         key = self.key("case", slot, None, values=digest, bg=s.background_size, seed=s.seed)
