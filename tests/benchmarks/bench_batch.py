@@ -74,6 +74,47 @@ explain(adapter, frame, background=background, background_size="all")
 print(len(frame) / (time.perf_counter() - t))
 """
 
+# The machine's own scaling: plain explain() calls in one process, then in two processes at
+# once (each on one thread, started together at a given clock time), on the same rows.
+CEILING = """
+import sys, time
+import numba
+import pandas as pd
+from threadpoolctl import threadpool_limits
+numba.set_num_threads(1)
+from demo_models.write import load_demo_model
+from workbench.engine.adapter import ModelAdapter
+from workbench.engine.attributions import explain, select_background
+adapter = ModelAdapter(load_demo_model(sys.argv[1]))
+frame = pd.read_parquet(sys.argv[2]).iloc[:int(sys.argv[4])]
+background = select_background(frame, int(sys.argv[3]), seed=0)
+with threadpool_limits(1):
+    explain(adapter, frame.iloc[:20], background=background, background_size="all")
+    time.sleep(max(0.0, float(sys.argv[5]) - time.time()))
+    t = time.perf_counter()
+    explain(adapter, frame, background=background, background_size="all")
+print(len(frame) / (time.perf_counter() - t))
+"""
+CEILING_ROWS = 8_000
+
+
+def machine_scaling(model: Path, data: Path, background: int, rounds: int) -> list[float]:
+    """Per round: rows per second of two plain processes at once / one process alone."""
+    ratios = []
+    for _ in range(rounds):
+        rates = []
+        for processes in (1, 2):
+            start = time.time() + 15  # both loaded and compiled by then
+            procs = [subprocess.Popen([sys.executable, "-c", CEILING, str(model), str(data),
+                                       str(background), str(CEILING_ROWS), str(start)],
+                                      stdout=subprocess.PIPE, text=True)
+                     for _ in range(processes)]
+            rates.append(sum(float(p.communicate()[0]) for p in procs))
+        ratios.append(rates[1] / rates[0])
+        print(f"  machine: one process {rates[0]:,.0f} rows/s, two at once {rates[1]:,.0f} "
+              f"rows/s, ratio {ratios[-1]:.2f}; load {load()}")
+    return ratios
+
 
 def load() -> str:
     return " ".join(f"{x:.2f}" for x in os.getloadavg())
@@ -158,6 +199,10 @@ def main() -> None:
     parser.add_argument("--skip-workers", action="store_true", help="only the memory check")
     parser.add_argument("--repeat", type=int, default=1,
                         help="rounds of (1 worker N, 2 workers N, 2 workers 2N), interleaved")
+    parser.add_argument("--machine-rounds", type=int, default=3,
+                        help="rounds of the machine's own scaling (two plain processes / one)")
+    parser.add_argument("--only-machine", action="store_true",
+                        help="measure the machine's own scaling and stop")
     parser.add_argument("--double-from-half", action="store_true",
                         help="the doubling check on N/2 and N rows instead of N and 2N (half "
                              "the time; one and two workers are still timed on N rows)")
@@ -183,6 +228,12 @@ def main() -> None:
         reference = float(subprocess.check_output(
             [sys.executable, "-c", REFERENCE, str(model), str(small), str(args.background)]))
         print(f"reference: explain() in one process, one thread: {reference:,.0f} rows/s")
+        if args.machine_rounds:
+            ratios = machine_scaling(model, small, args.background, args.machine_rounds)
+            print(f"  the machine's own scaling, two processes / one: {spread(ratios, '.2f')} "
+                  "(the most two workers can reach here)")
+        if args.only_machine:
+            return
         rounds = []
         other_name = "2 workers, N/2" if args.double_from_half else "2 workers, 2N"
         for r in range(args.repeat):
