@@ -1,7 +1,7 @@
 """Speed of the window (a script, not a test): ``python tests/benchmarks/bench_ui.py``.
 
 Run one part with its name as argument (``heartbeat``, ``trial_values``, ``portfolio_200k``,
-``trial_values_bars_only``; ``heartbeat_threads`` runs the heartbeat with every job in threads,
+``trial_values_bars_only``, ``trial_values_in_workers``; ``heartbeat_threads`` runs the heartbeat with every job in threads,
 as before the worker processes, for comparison).
 
 1. Heartbeat: a 10 ms timer on the main thread while engine jobs run (worker processes); the
@@ -226,6 +226,49 @@ def trial_values(*, with_reasons: bool = True) -> dict:
     return out
 
 
+def trial_values_in_workers(*, edits: int = 8) -> dict:
+    """Trial edits on the challenger with the worker processes, as the window runs: from the
+    edit to the new contribution bars, with the workers idle and then while the Pairs level's
+    H-statistics keep both heavy workers busy (the edit goes to the quick worker)."""
+    from workbench.ui.jobs import spin_events
+
+    app, win = _window(synchronous=False)
+    runner = win.ctx.runner
+    win.ctx.focus.update(model="B", level="Case", row=7)
+    case = win.levels["Case"]
+
+    def settle():
+        start = time.perf_counter()
+        while runner.running and time.perf_counter() - start < 300:
+            spin_events(5)
+
+    def edit_times(tag: float) -> list[float]:
+        times = []
+        for k, value in enumerate(np.linspace(0.1, 0.8, edits)):
+            before = case.contributions
+            t0 = time.perf_counter()
+            case.set_trial("debt_to_income", float(value) + tag + k * 1e-6)
+            while case.contributions is before and time.perf_counter() - t0 < 30:
+                spin_events(1)
+            times.append(time.perf_counter() - t0)
+        return times
+
+    settle()
+    idle = edit_times(0.0)
+    win.ctx.focus.update(model="B", level="Pairs")  # H-statistics start in the heavy workers
+    spin_events(50)
+    win.ctx.focus.update(model="B", level="Case", row=7)
+    busy_jobs = sorted(j.title for j in runner.running)
+    busy = edit_times(1e-3)
+    out = {"idle_median_ms": ms(np.median(idle[1:])), "idle_max_ms": ms(max(idle[1:])),
+           "first_edit_ms": ms(idle[0]),
+           "busy_median_ms": ms(np.median(busy)), "busy_max_ms": ms(max(busy)),
+           "jobs_running_while_busy": busy_jobs, "load": os.getloadavg()[0]}
+    runner.cancel_all()
+    win.close()
+    return out
+
+
 def ms(seconds: float) -> float:
     return round(float(seconds) * 1000, 1)
 
@@ -263,7 +306,8 @@ if __name__ == "__main__":
     for name, fn in (("heartbeat", heartbeat), ("trial_values", trial_values),
                      ("heartbeat_threads", lambda: heartbeat(processes=0)),
                      ("portfolio_200k", portfolio_200k),
-                     ("trial_values_bars_only", lambda: trial_values(with_reasons=False))):
+                     ("trial_values_bars_only", lambda: trial_values(with_reasons=False)),
+                     ("trial_values_in_workers", trial_values_in_workers)):
         if not only or name in only:
             print(name, fn(), flush=True)
     os._exit(0)  # skip Qt teardown

@@ -115,8 +115,10 @@ class CaseLevel(Level):
         plots = QWidget()
         plots_layout = QHBoxLayout(plots)
         plots_layout.setContentsMargins(0, 0, 0, 0)
+        # the bars' labels take much of their width: the running total gets what is left
         plots_layout.addWidget(self.bars, 3)
-        plots_layout.addWidget(self.running, 2)
+        plots_layout.addWidget(self.running, 1)
+        self.running.setMinimumWidth(140)
         self.bar_note = QLabel("Click a bar to see that feature's Effect, with this case marked.")
         self.bar_note.setStyleSheet("color: #555;")
         self.caution = QLabel(CASE_CAUTION)
