@@ -131,7 +131,7 @@ class DaskCluster:
         found = self._client.scheduler_info().get("workers", {})
         if not found:
             self.__exit__(None, None, None)
-            raise InputError(f"the Dask scheduler at {self._scheduler} has no workers")
+            raise InputError(f"{self.name} has no workers")
         threads = {address: max(int(info.get("nthreads", 1)), 1) for address, info in found.items()}
         self._room = {address: PIECES_PER_WORKER_QUEUED * n for address, n in threads.items()}
         self._queued = dict.fromkeys(threads, 0)

@@ -272,16 +272,8 @@ def interventional_feature_masks(X, route, prev_same, values, tree_start, tree_t
                             top += 1
                     continue
                 lf = leaf_of_node[nd]
-                b = 0
-                w = fx
-                while w != 0:
-                    b += 1
-                    w &= w - 1
-                n_alive = 0
-                w = alive
-                while w != 0:
-                    n_alive += 1
-                    w &= w - 1
+                b = _bits(fx)
+                n_alive = _bits(alive)
                 w_b = 0.0
                 if n_alive <= n_unique[lf]:
                     # few rows reach the leaf: take them one by one (all compatible)
