@@ -15,7 +15,9 @@ from __future__ import annotations
 
 import numba
 import numpy as np
+from numba.core import types
 from numba.cpython.unsafe.numbers import trailing_zeros
+from numba.extending import intrinsic
 
 from workbench.engine.treeshap._route import goes_left
 
@@ -52,14 +54,16 @@ def _leaf_mask(o, start, edges, e0, d):
     return mask
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
-def _bits(w):
-    """The number of bits set in w."""
-    size = 0
-    while w != 0:
-        size += 1
-        w &= w - 1
-    return size
+@intrinsic
+def _bits(typingctx, w):
+    """The number of bits set in w (one processor instruction, not a loop over the bits)."""
+    if not isinstance(w, types.Integer):
+        return None
+
+    def codegen(context, builder, signature, args):
+        return builder.ctpop(args[0])
+
+    return w(w), codegen
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
@@ -71,27 +75,31 @@ def _mark_follows(o, follows, start, stop, bit):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _group_masks(row, lf, n_unique, unique_mask, unique_count, unique_size):
-    """Leaf lf's distinct fail masks from its rows' masks (sorted), with their counts and
-    sizes; a mask holds no bit beyond the leaf's path, so its size is its bit count."""
+def _group_masks(masks, lf, n_unique, unique_mask, unique_count, row_group):
+    """Leaf lf's distinct fail masks (sorted) from its rows' masks, with how many rows have
+    each; when row_group has rows, also which group each row fell in. A mask's size is its bit
+    count (it holds no bit beyond the leaf's path), so sizes are not stored."""
+    order = np.argsort(masks, kind="mergesort")
     k = -1
-    for j in range(row.size):
-        if k < 0 or row[j] != unique_mask[lf, k]:
+    for j in range(order.size):
+        m = masks[order[j]]
+        if k < 0 or m != unique_mask[lf, k]:
             k += 1
-            unique_mask[lf, k] = row[j]
+            unique_mask[lf, k] = m
             unique_count[lf, k] = 0
-            unique_size[lf, k] = _bits(row[j])
         unique_count[lf, k] += 1
+        if row_group.shape[0] > 0:
+            row_group[lf, order[j]] = k
     n_unique[lf] = k + 1
 
 
 @numba.njit(cache=True, nogil=True, parallel=True)
 def background_masks(Z, route, prev_same, tree_start, tree_use, leaf_start, edge_start, edges,
-                     max_nodes, follows, n_unique, unique_mask, unique_count, unique_size):
+                     max_nodes, follows, n_unique, unique_mask, unique_count):
     """For up to 64 background rows z_j: bit j of follows[c] is set when z_j follows every
     split on edge c's feature from the root down to c; per leaf, the distinct fail masks of the
-    rows (unique_mask[leaf, :n_unique[leaf]]), how many rows have each (unique_count) and how
-    many features each mask holds (unique_size). Rows with one mask share one leaf share."""
+    rows (unique_mask[leaf, :n_unique[leaf]]) and how many rows have each (unique_count).
+    Rows with one mask share one leaf share."""
     n_bg = Z.shape[0]
     for t in numba.prange(tree_start.size - 1):
         if tree_use[t] == 0:
@@ -100,6 +108,7 @@ def background_masks(Z, route, prev_same, tree_start, tree_use, leaf_start, edge
         start = tree_start[t]
         n_lf = leaf_start[t + 1] - leaf_start[t]
         masks = np.zeros((n_lf, n_bg), np.int64)
+        no_groups = np.zeros((0, 1), np.int8)
         for c in range(start, tree_start[t + 1]):
             follows[c] = 0
         for j in range(n_bg):
@@ -109,14 +118,14 @@ def background_masks(Z, route, prev_same, tree_start, tree_use, leaf_start, edge
                 d = edge_start[lf + 1] - edge_start[lf]
                 masks[lf - leaf_start[t], j] = _leaf_mask(o, start, edges, edge_start[lf], d)
         for lf in range(leaf_start[t], leaf_start[t + 1]):
-            _group_masks(np.sort(masks[lf - leaf_start[t]]), lf, n_unique, unique_mask,
-                         unique_count, unique_size)
+            _group_masks(masks[lf - leaf_start[t]], lf, n_unique, unique_mask, unique_count,
+                         no_groups)
 
 
 @numba.njit(cache=True, nogil=True, parallel=True)
 def interventional_masks(X, route, parent, prev_same, values, tree_start, tree_target, tree_use,
                          leaf_start, leaf_of_node, edge_start, edges, max_nodes, max_depth,
-                         max_unique, follows, n_unique, unique_mask, unique_count, unique_size,
+                         max_unique, follows, n_unique, unique_mask, unique_count,
                          n_bg, w_pos, w_neg, scale, out):
     """out[i] += scale * sum over (up to 64) background rows of the interventional shares of
     row i. A depth-first walk carries the set of background rows (one bit each) whose hybrids
@@ -167,7 +176,7 @@ def interventional_masks(X, route, parent, prev_same, values, tree_start, tree_t
                     fm = unique_mask[lf, u]
                     if fm & fx != 0:
                         continue  # no hybrid of x with these rows reaches the leaf
-                    a = unique_size[lf, u]
+                    a = _bits(fm)
                     cnt = unique_count[lf, u]
                     w_b += cnt * w_neg[a, b]
                     if a > 0:
@@ -194,9 +203,10 @@ def interventional_masks(X, route, parent, prev_same, values, tree_start, tree_t
 @numba.njit(cache=True, nogil=True, parallel=True)
 def background_feature_masks(Z, route, parent, prev_same, tree_start, tree_use, leaf_start,
                              edge_start, edges, max_nodes, follows, n_unique, unique_mask,
-                             unique_count, unique_size, row_mask, row_size):
-    """As background_masks, with masks over feature indices instead of path slots; also each
-    row's own mask and its size (row_mask, row_size), for leaves few rows reach."""
+                             unique_count, row_group):
+    """As background_masks, with masks over feature indices instead of path slots; also the
+    group of each row (row_group: one byte, where the row's own mask would take eight), for
+    leaves few rows reach."""
     feature = route[2]
     n_bg = Z.shape[0]
     for t in numba.prange(tree_start.size - 1):
@@ -217,18 +227,16 @@ def background_feature_masks(Z, route, parent, prev_same, tree_start, tree_use, 
                     if o[edges[s] - start] == 0:
                         mk |= np.int64(1) << feature[parent[edges[s]]]
                 masks[lf - leaf_start[t], j] = mk
-                row_mask[lf, j] = mk
-                row_size[lf, j] = _bits(mk)
         for lf in range(leaf_start[t], leaf_start[t + 1]):
-            _group_masks(np.sort(masks[lf - leaf_start[t]]), lf, n_unique, unique_mask,
-                         unique_count, unique_size)
+            _group_masks(masks[lf - leaf_start[t]], lf, n_unique, unique_mask, unique_count,
+                         row_group)
 
 
 @numba.njit(cache=True, nogil=True, parallel=True)
 def interventional_feature_masks(X, route, prev_same, values, tree_start, tree_target,
                                  tree_use, leaf_of_node, max_nodes, max_depth, follows,
-                                 n_unique, unique_mask, unique_count, unique_size, row_mask,
-                                 row_size, n_bg, w_pos, w_neg, scale, out):
+                                 n_unique, unique_mask, unique_count, row_group, n_bg, w_pos,
+                                 w_neg, scale, out):
     """As interventional_masks, with x's fail mask carried down the walk as feature bits."""
     left, right, feature = route[0], route[1], route[2]
     n_out = out.shape[2]
@@ -280,11 +288,11 @@ def interventional_feature_masks(X, route, prev_same, values, tree_start, tree_t
                     while alive != 0:
                         j = trailing_zeros(alive)
                         alive &= alive - 1
-                        a = row_size[lf, j]
+                        fm = unique_mask[lf, row_group[lf, j]]
+                        a = _bits(fm)
                         w_b += w_neg[a, b]
                         if a > 0:
                             wp = w_pos[a, b] * scale
-                            fm = row_mask[lf, j]
                             while fm != 0:
                                 f = trailing_zeros(fm)
                                 fm &= fm - 1
@@ -296,7 +304,7 @@ def interventional_feature_masks(X, route, prev_same, values, tree_start, tree_t
                         fm = unique_mask[lf, u]
                         if fm & fx != 0:
                             continue
-                        a = unique_size[lf, u]
+                        a = _bits(fm)
                         cnt = unique_count[lf, u]
                         w_b += cnt * w_neg[a, b]
                         if a > 0:

@@ -179,10 +179,10 @@ def shap_values(ens: TreeEnsemble, X, *, method: str = "path", background=None,
         follows = np.zeros(ens.left.size, np.int64)
         n_unique = np.zeros(n_leaves, np.int64)
         unique_mask = np.zeros((n_leaves, word), np.int64)
-        unique_count = np.zeros((n_leaves, word), np.int64)
-        unique_size = np.zeros((n_leaves, word), np.int64)
-        row_mask = np.zeros((n_leaves, word) if feature_bits else (0, word), np.int64)
-        row_size = np.zeros_like(row_mask)
+        # small types keep the per-leaf tables within a core's own cache (they are read for
+        # every row; two workers on one machine otherwise contend for the shared cache)
+        unique_count = np.zeros((n_leaves, word), np.int32)
+        row_group = np.zeros((n_leaves, word) if feature_bits else (0, word), np.int8)
         row_chunk = max(1, CHUNK_ROWS * 100 // Z.shape[0])
         row_chunks = list(jobs.chunk_slices(n, row_chunk))
         steps = len(bg_chunks) * len(row_chunks)
@@ -193,12 +193,12 @@ def shap_values(ens: TreeEnsemble, X, *, method: str = "path", background=None,
                 _kernel_interventional_masks.background_feature_masks(
                     Zc, route, ens.parent, p.prev_same, ens.tree_start, use_masks,
                     p.leaf_start, p.leaf_edge_start, p.leaf_edges, max_nodes, follows,
-                    n_unique, unique_mask, unique_count, unique_size, row_mask, row_size)
+                    n_unique, unique_mask, unique_count, row_group)
             elif use_masks.any():
                 _kernel_interventional_masks.background_masks(
                     Zc, route, p.prev_same, ens.tree_start, use_masks, p.leaf_start,
                     p.leaf_edge_start, p.leaf_edges, max_nodes, follows, n_unique, unique_mask,
-                    unique_count, unique_size)
+                    unique_count)
             for sl in row_chunks:
                 jobs.step(progress, cancel, done / steps, "interventional SHAP values")
                 done += 1
@@ -206,14 +206,14 @@ def shap_values(ens: TreeEnsemble, X, *, method: str = "path", background=None,
                     _kernel_interventional_masks.interventional_feature_masks(
                         X[sl], route, p.prev_same, ens.values, ens.tree_start,
                         ens.tree_target, use_masks, leaf_of_node, max_nodes, ens.max_depth,
-                        follows, n_unique, unique_mask, unique_count, unique_size, row_mask,
-                        row_size, Zc.shape[0], w_pos, w_neg, 1.0 / Z.shape[0], out[sl])
+                        follows, n_unique, unique_mask, unique_count, row_group, Zc.shape[0],
+                        w_pos, w_neg, 1.0 / Z.shape[0], out[sl])
                 elif use_masks.any():
                     _kernel_interventional_masks.interventional_masks(
                         X[sl], route, ens.parent, p.prev_same, ens.values, ens.tree_start,
                         ens.tree_target, use_masks, p.leaf_start, leaf_of_node,
                         p.leaf_edge_start, p.leaf_edges, max_nodes, ens.max_depth, max_unique,
-                        follows, n_unique, unique_mask, unique_count, unique_size, Zc.shape[0],
+                        follows, n_unique, unique_mask, unique_count, Zc.shape[0],
                         w_pos, w_neg, 1.0 / Z.shape[0], out[sl])
                 if use_walk.any():
                     _kernel_interventional.interventional_shap(
