@@ -22,7 +22,9 @@ from workbench.engine import jobs
 from workbench.engine.attributions import explain
 from workbench.engine.errors import InputError
 from workbench.engine.reasons import (
+    CREDIT_SIDES,
     DEFAULT_REASONS,
+    CutoffSides,
     case_response,
     check_cutoff,
     check_side,
@@ -103,13 +105,14 @@ def reason_stability(adapter, frame_row: pd.DataFrame, background_pool: pd.DataF
                      k: int = DEFAULT_REASONS, adverse_if: str = "above",
                      not_allowed: Sequence[str] = (), threshold: float = DEFAULT_THRESHOLD,
                      method: str = "auto", cutoff: float | None = None, on_request: bool = True,
-                     progress=None, cancel=None) -> StabilityResult:
+                     sides: CutoffSides = CREDIT_SIDES, progress=None,
+                     cancel=None) -> StabilityResult:
     """Spread of one case's contributions and reason ranks over background resamples.
 
     ``frame_row``: the case (one row, raw columns). ``background_pool``: the rows the
     backgrounds are drawn from (the reference data, or the data). With a ``cutoff``, a case on
     the favourable side raises :class:`InputError` unless ``on_request`` (reasons are only
-    stated for adverse cases unless asked for).
+    stated for adverse cases unless asked for); ``sides`` names the cutoff's sides there.
     """
     check_side(adverse_if)
     if not isinstance(frame_row, pd.DataFrame) or len(frame_row) != 1:
@@ -125,8 +128,8 @@ def reason_stability(adapter, frame_row: pd.DataFrame, background_pool: pd.DataF
         values = {c: frame_row[c].iloc[0] for c in frame_row.columns}
         response = case_response(adapter, values)
         if not is_adverse(response, check_cutoff(cutoff), adverse_if):
-            raise InputError(f"the case is on the favourable side of the cutoff {cutoff:g} "
-                             f"(score {response:.4g}): no reasons to check")
+            raise InputError(f"the case is on {sides.other} (score {response:.4g}, cutoff "
+                             f"{cutoff:g}): no reasons to check")
     resamples = int(resamples)
     runs = []
     used_method = ""

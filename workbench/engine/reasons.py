@@ -177,6 +177,44 @@ def default_outcome(adapter) -> str:
     return f"the {getattr(adapter, 'response_units', None) or 'predicted value'}"
 
 
+def side_phrases(adapter, adverse_if: str = "above", target: str | None = None) -> tuple[str, str]:
+    """Plain names of the two sides of the cutoff: (the side reasons are stated for, the other).
+
+    "Adverse" and "favourable" suit credit decisions only; for a claim frequency, a price or a
+    diagnosis the sides are named by what the model predicts there.
+    """
+    task = getattr(adapter, "task", "")
+    if task == "count":
+        what = "predicted frequency"
+    elif task == "regression":
+        what = "predicted value"
+    else:
+        positive = getattr(adapter, "positive_class", None)
+        numeric = isinstance(positive, int | float) and not isinstance(positive, bool)
+        named = f"{target} = {positive}" if numeric and target else f"{positive}"
+        what = f"estimated probability of {named}"
+    high, low = f"higher {what}", f"lower {what}"
+    return (high, low) if adverse_if == "above" else (low, high)
+
+
+@dataclass(frozen=True)
+class CutoffSides:
+    """How messages name the two sides of the cutoff: ``stated``, the side reasons are stated
+    for, and ``other``. The credit words by default; :meth:`plain` names them by what the
+    model predicts there."""
+
+    stated: str = "the adverse side"
+    other: str = "the favourable side"
+
+    @classmethod
+    def plain(cls, adapter, adverse_if: str = "above", target: str | None = None) -> CutoffSides:
+        stated, other = side_phrases(adapter, adverse_if, target)
+        return cls(f"the side of {stated}", f"the side of {other}")
+
+
+CREDIT_SIDES = CutoffSides()
+
+
 def sentence_for(feature: str, value, contribution: float, rank: int, *, direction: str,
                  templates: ReasonTemplates, outcome: str) -> str:
     wording = templates.wording(feature)
@@ -317,7 +355,8 @@ def reason_statements(attributions_row, values_row, *, adapter, cutoff: float,
                       adverse_if: str = "above", k: int = DEFAULT_REASONS,
                       templates: ReasonTemplates | None = None, not_allowed: Sequence[str] = (),
                       material: float = DEFAULT_MATERIAL, on_request: bool = False,
-                      response: float | None = None) -> ReasonResult:
+                      response: float | None = None,
+                      sides: CutoffSides = CREDIT_SIDES) -> ReasonResult:
     """Reason statements for one case (see the module docstring for the rules).
 
     Parameters
@@ -332,6 +371,7 @@ def reason_statements(attributions_row, values_row, *, adapter, cutoff: float,
     material : share of the total adverse push that makes a not-allowed feature worth a flag.
     on_request : also give the strongest adverse factors of a case on the favourable side.
     response : the case's response when already known (otherwise the adapter scores it).
+    sides : the names of the cutoff's sides in the messages (credit words by default).
     """
     check_side(adverse_if)
     cutoff = check_cutoff(cutoff)
@@ -367,9 +407,9 @@ def reason_statements(attributions_row, values_row, *, adapter, cutoff: float,
             flags.append(NotAllowedFlag(
                 f, c, share, towards,
                 f"{templates.wording(f).display_name} is marked not allowed but moved the score "
-                f"{'towards' if towards else 'away from'} the adverse side by {abs(c):.3g} "
-                f"({share:.0%} of the total adverse push); it is not stated as a reason, "
-                f"but the model uses it: review it."))
+                f"{'towards' if towards else 'away from'} {sides.stated} by {abs(c):.3g} "
+                f"({share:.0%} of the total push towards {sides.stated}); it is not stated "
+                f"as a reason, but the model uses it: review it."))
 
     params = dict(adverse=adverse, response=float(response), cutoff=cutoff, adverse_if=adverse_if,
                   k=k, material=float(material), on_request=bool(on_request), not_allowed=blocked,
@@ -378,7 +418,7 @@ def reason_statements(attributions_row, values_row, *, adapter, cutoff: float,
         ("below" if adverse_if == "above" else "at or above")
     where = f"score {float(response):.4g} {side} the cutoff {cutoff:.4g}"
     if not adverse and not on_request:
-        return ReasonResult((), tuple(flags), message=f"The case is on the favourable side "
+        return ReasonResult((), tuple(flags), message=f"The case is on {sides.other} "
                             f"({where}): no reasons are stated.", **params)
 
     order = [i for i in np.argsort(-push, kind="stable") if push[i] > 0
@@ -392,20 +432,22 @@ def reason_statements(attributions_row, values_row, *, adapter, cutoff: float,
         reasons.append(Reason(f, _plain(values.get(f)), c, rank, text,
                               share=float(push[i] / total) if total else 0.0))
     if not reasons:
-        message = (f"The case is on the adverse side ({where}), but no allowed feature pushed it "
-                   "there: the base value itself lies on the adverse side."
-                   if adverse else f"The case is on the favourable side ({where}) and no allowed "
-                   "feature pushed it towards the adverse side.")
+        message = (f"The case is on {sides.stated} ({where}), but no allowed feature pushed it "
+                   f"there: the base value itself lies on {sides.stated}."
+                   if adverse else f"The case is on {sides.other} ({where}) and no allowed "
+                   f"feature pushed it towards {sides.stated}.")
     elif adverse:
-        message = (f"The case is on the adverse side ({where}); {len(reasons)} reason(s) stated, "
+        message = (f"The case is on {sides.stated} ({where}); {len(reasons)} reason(s) stated, "
                    f"strongest first.")
     else:
-        message = (f"The case is on the favourable side ({where}); on request, the "
-                   f"{len(reasons)} strongest factor(s) towards the adverse side.")
+        message = (f"The case is on {sides.other} ({where}); on request, the "
+                   f"{len(reasons)} strongest factor(s) towards {sides.stated}.")
     return ReasonResult(tuple(reasons), tuple(flags), message=message, **params)
 
 
 __all__ = [
+    "CREDIT_SIDES",
+    "CutoffSides",
     "DEFAULT_MATERIAL",
     "DEFAULT_REASONS",
     "FeatureWording",
@@ -417,4 +459,5 @@ __all__ = [
     "format_value",
     "is_adverse",
     "reason_statements",
+    "side_phrases",
 ]

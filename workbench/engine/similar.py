@@ -14,6 +14,7 @@ import pandas as pd
 
 from workbench.engine.errors import InputError
 from workbench.engine.gower import nearest
+from workbench.engine.reasons import CREDIT_SIDES, CutoffSides
 
 
 @dataclass(frozen=True)
@@ -77,8 +78,9 @@ def similar_rows(data_frame: pd.DataFrame, row_position: int, *, k: int = 5,
 
 
 def similar_summary(rows: Sequence[SimilarRow], *, cutoff: float | None = None,
-                    adverse_if: str = "above") -> str:
-    """One sentence: how many neighbours the model puts on the adverse side, and their labels."""
+                    adverse_if: str = "above", sides: CutoffSides = CREDIT_SIDES) -> str:
+    """One sentence: how many neighbours the model puts on the side of the cutoff reasons are
+    stated for (``sides.stated``), and their labels."""
     if not rows:
         return "No similar rows."
     parts = [f"{len(rows)} most similar rows (Gower distance {rows[0].distance:.3g} to "
@@ -86,7 +88,7 @@ def similar_summary(rows: Sequence[SimilarRow], *, cutoff: float | None = None,
     preds = [r.prediction for r in rows if r.prediction is not None]
     if cutoff is not None and preds:
         adverse = sum((p >= cutoff) if adverse_if == "above" else (p < cutoff) for p in preds)
-        parts.append(f"{adverse} of {len(preds)} on the adverse side of the cutoff {cutoff:g}")
+        parts.append(f"{adverse} of {len(preds)} on {sides.stated} (cutoff {cutoff:g})")
     labels = [r.label for r in rows if r.label is not None]
     if labels:
         counts = pd.Series(labels).astype(str).value_counts()

@@ -38,7 +38,7 @@ from PySide6.QtWidgets import (
 
 from workbench.engine.errors import InputError
 from workbench.engine.flips import score_text
-from workbench.engine.reasons import ReasonTemplates, reason_statements
+from workbench.engine.reasons import CutoffSides, ReasonTemplates, reason_statements
 from workbench.engine.similar import similar_summary
 from workbench.report.render import CAUTIONS
 from workbench.ui.pool_tasks import PoolTask, Shared, engine_call, similar_rows_of
@@ -73,37 +73,6 @@ class CaseInputs:
     id_label: str | None = None
     id_value: object = None
     response: float | None = None  # the case's score when already known (saves a model call)
-
-
-def side_phrases(adapter, adverse_if: str = "above", target: str | None = None) -> tuple[str, str]:
-    """Plain names of the two sides of the cutoff: (the side reasons are stated for, the other).
-
-    "Adverse" and "favourable" suit credit decisions only; for a claim frequency, a price or a
-    diagnosis the sides are named by what the model predicts there.
-    """
-    task = getattr(adapter, "task", "")
-    if task == "count":
-        what = "predicted frequency"
-    elif task == "regression":
-        what = "predicted value"
-    else:
-        positive = getattr(adapter, "positive_class", None)
-        numeric = isinstance(positive, int | float) and not isinstance(positive, bool)
-        named = f"{target} = {positive}" if numeric and target else f"{positive}"
-        what = f"estimated probability of {named}"
-    high, low = f"higher {what}", f"lower {what}"
-    return (high, low) if adverse_if == "above" else (low, high)
-
-
-def plain_sides(text: str, stated: str, other: str) -> str:
-    """The engine's credit wording of the cutoff's sides in ``text`` put in plain words."""
-    for old, new in (("on the adverse side", f"on the side of {stated}"),
-                     ("on the favourable side", f"on the side of {other}"),
-                     ("towards the adverse side", f"towards {stated}"),
-                     ("lies on the adverse side", f"lies on the side of {stated}"),
-                     ("total adverse push", f"total push towards {stated}")):
-        text = text.replace(old, new)
-    return text
 
 
 def _table(headers: list[str], stretch: int | None = None) -> QTableWidget:
@@ -381,7 +350,7 @@ class ReasonsPanel(QWidget):
             self.reasons = reason_statements(
                 case.attributions, case.values_row, adapter=case.adapter, cutoff=case.cutoff,
                 adverse_if=case.adverse_if, templates=case.templates, not_allowed=case.not_allowed,
-                on_request=True, response=case.response)
+                on_request=True, response=case.response, sides=self.sides())
         except InputError as exc:
             self.reasons = None
             self.message.setText(str(exc))
@@ -393,10 +362,9 @@ class ReasonsPanel(QWidget):
         self.flag_label.hide()
         if result is None:
             return
-        stated, other = self.sides()
-        text = plain_sides(result.message, stated, other)
+        text = result.message
         if not result.adverse and result.reasons:
-            text += f" Shown for information: no reasons are due on the side of {other}."
+            text += f" Shown for information: no reasons are due on {self.sides().other}."
         self.message.setText(text)
         unstable = set(self.stability.unstable) if self.stability is not None else set()
         table.setRowCount(len(result.reasons))
@@ -407,18 +375,16 @@ class ReasonsPanel(QWidget):
             table.setItem(i, 2, _cell(mark))
         _fit(table)
         if result.flagged_not_allowed:
-            self.flag_label.setText(plain_sides(
-                "For the analyst, not for the applicant: "
-                + " ".join(f.text for f in result.flagged_not_allowed), stated, other))
+            self.flag_label.setText("For the analyst, not for the applicant: "
+                                    + " ".join(f.text for f in result.flagged_not_allowed))
             self.flag_label.show()
 
-    def sides(self) -> tuple[str, str]:
-        """This case's cutoff sides in plain words (see :func:`side_phrases`)."""
+    def sides(self) -> CutoffSides:
+        """This case's cutoff sides in plain words (see :meth:`CutoffSides.plain`)."""
         case = self.case
         if case is None:
-            return "the cutoff's upper side", "the cutoff's lower side"
-        target = getattr(case.labels, "name", None)
-        return side_phrases(case.adapter, case.adverse_if, target)
+            return CutoffSides("the cutoff's upper side", "the cutoff's lower side")
+        return CutoffSides.plain(case.adapter, case.adverse_if, getattr(case.labels, "name", None))
 
     def _fill_actionable(self, ticked) -> None:
         case = self.case
@@ -490,7 +456,7 @@ class ReasonsPanel(QWidget):
             self.flip_message.setText(str(result) or type(result).__name__)
             return
         self.flips = result
-        self.flip_message.setText(plain_sides(result.message, *self.sides()))
+        self.flip_message.setText(result.message)
         wording = self.case.templates.wording if self.case is not None else None
         table.setRowCount(len(result.options))
         for i, option in enumerate(result.options):
@@ -524,8 +490,7 @@ class ReasonsPanel(QWidget):
     def _show_stability(self, result) -> None:
         if isinstance(result, BaseException):
             self.stability = None
-            self.stability_note.setText(plain_sides(str(result) or type(result).__name__,
-                                                    *self.sides()))
+            self.stability_note.setText(str(result) or type(result).__name__)
             return
         self.stability = result
         unstable = ", ".join(result.unstable) or "none"
@@ -608,9 +573,9 @@ class ReasonsPanel(QWidget):
             return
         self.similar = list(result)
         case = self.case
-        self.similar_message.setText(plain_sides(similar_summary(
+        self.similar_message.setText(similar_summary(
             self.similar, cutoff=case.cutoff if case else None,
-            adverse_if=case.adverse_if if case else "above"), *self.sides()))
+            adverse_if=case.adverse_if if case else "above", sides=self.sides()))
         table.setRowCount(len(self.similar))
         for i, s in enumerate(self.similar):
             pred = "—" if s.prediction is None else f"{s.prediction:.4g}"

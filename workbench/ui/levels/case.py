@@ -26,7 +26,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from workbench.engine.reasons import ReasonTemplates
+from workbench.engine.reasons import ReasonTemplates, side_phrases
 from workbench.ui.context import project_of
 from workbench.ui.levels.base import Level, register_level
 from workbench.ui.plotting import LOWERS, NEUTRAL, RAISES, TitledPlot, colour, message_item
@@ -35,7 +35,6 @@ from workbench.ui.reasons_panel import (
     load_trial_values,
     scrolled,
     show_for_case_level,
-    side_phrases,
 )
 from workbench.ui.results import values_digest
 from workbench.ui.threads import single_threaded
@@ -376,7 +375,8 @@ class CaseLevel(Level):
             self.bars.title_label.setText("Contribution bars: updating for the trial values…")
         key = self.view_key()
         self.ctx.results.case_attributions(
-            state.model, frame, digest, self._show_contributions, self._contributions_failed,
+            state.model, frame, digest, self.arrival(self._show_contributions),
+            self._contributions_failed,
             relevant=lambda: self.view_key() == key and self._digest == digest)
 
     def _show_score(self, adapter, output: float) -> None:
