@@ -290,7 +290,7 @@ class ChecksLevel(Level):
         key = ("checks", ws.slot("A").sha256, ws.data_key(), repr(s.positive_class), target,
                tuple(sorted(expectations.items())), group, s.cutoff, s.seed, s.background_size)
         self.note.setText("Running the checks…")
-        self.ctx.runner.request(key, "Audit checks (model A)", work, done,
+        self.ctx.runner.request(key, "Audit checks (model A)", work, self.arrival(done),
                                 on_error=lambda exc: self.note.setText(f"The checks failed: {exc}"),
                                 relevant=self.relevant())
 

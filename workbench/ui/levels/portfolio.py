@@ -302,7 +302,8 @@ class PortfolioLevel(Level):
         self._fill(frame, None)
         self.model.set_rows(rows)
         self._summarise()
-        self.ctx.results.scores(state.model, self._scored, self._score_failed, self.relevant())
+        self.ctx.results.scores(state.model, self.arrival(self._scored), self._score_failed,
+                                self.relevant())
 
     def _show_exposure_choice(self) -> None:
         """The exposure picker, for count models only; the first time, a guessed column."""

@@ -339,7 +339,8 @@ class VersionsLevel(Level):
                repr(ws.settings.positive_class), ws.settings.target, cut_a, cut_b, seed,
                RESAMPLES, IMPORTANCE_ROWS, len(rows))
         self._fill_features(adapter_a, adapter_b)  # before the request: it may answer at once
-        self.ctx.runner.request(key, "Champion against challenger", work, self._arrived,
+        self.ctx.runner.request(key, "Champion against challenger", work,
+                                self.arrival(self._arrived),
                                 on_error=self._failed, relevant=self.relevant())
 
     def _failed(self, exc) -> None:
@@ -353,9 +354,9 @@ class VersionsLevel(Level):
         self.comparison = comparison
         self._show_metrics(comparison)
         self._show_swap(comparison)
-        self._draw_scatter(comparison)
-        self._draw_shift(comparison)
-        self._draw_lift(comparison)
+        # each plot in its own event-loop turn, so that Qt paints between them
+        for draw in (self._draw_scatter, self._draw_shift, self._draw_lift):
+            self.draws.later(lambda d=draw: d(comparison))
         self.request_overlay()
         if self.state.row is not None and self.state.row in set(self.rows.tolist()):
             self.show_detail(int(self.state.row))
@@ -479,7 +480,8 @@ class VersionsLevel(Level):
         digest = values_digest({"row": row})
         for slot in ("A", "B"):
             self.ctx.results.case_attributions(
-                slot, frame, digest, lambda r, s=slot, at=row: self._case_arrived(s, at, r),
+                slot, frame, digest,
+                self.arrival(lambda r, s=slot, at=row: self._case_arrived(s, at, r)),
                 lambda e, s=slot: message_item(self._bars(s).plot, f"Contribution bars: {e}"),
                 relevant=lambda at=row: self.detail_row == at)
 
@@ -730,7 +732,7 @@ class VersionsLevel(Level):
                repr(ws.settings.positive_class), feature, len(rows), ws.settings.seed)
         wanted = self.relevant()
         self.ctx.runner.request(
-            key, f"Effect overlay of {feature}", work, self._overlay_arrived,
+            key, f"Effect overlay of {feature}", work, self.arrival(self._overlay_arrived),
             on_error=lambda e: message_item(self.overlay_plot.plot, f"Effect overlay: {e}"),
             relevant=lambda f=feature: wanted() and self.overlay_feature.currentText() == f)
 
