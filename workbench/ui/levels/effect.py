@@ -76,6 +76,7 @@ class EffectLevel(Level):
         self.dist_plot.plot.setXLink(self.curve_plot.plot)
         self.scatter_plot.plot.setXLink(self.curve_plot.plot)
         self.curve = self.ale = self.sample = self.partner = None
+        self.x_span: tuple[float, float] | None = None  # see _fix_x_span
         self.focus_contribution = None
         self.levels: list | None = None
         self.scatter_item = None
@@ -116,6 +117,7 @@ class EffectLevel(Level):
         self.heading.setText(f"<b>Effect</b> — {feature}, model {s.model}{row}")
         for p in (self.curve_plot, self.ale_plot, self.scatter_plot, self.dist_plot):
             message_item(p.plot, "Computing…")
+        self._fix_x_span(adapter, feature)
         rel = self.relevant()
         r = self.ctx.results
         # Every arrival is drawn from the draw queue: one plot per event-loop turn.
@@ -133,6 +135,27 @@ class EffectLevel(Level):
         if s.row is not None and s.row < ws.n_rows:
             r.case_attributions(s.model, ws.frame.iloc[[s.row]], values_digest({"row": s.row}),
                                 later(self._focus_arrived), None, rel)
+
+    def _fix_x_span(self, adapter, feature: str) -> None:
+        """The linked plots (curve, distribution, scatter) share one x range, set from the
+        segment's values before any result arrives: a range that each arrival re-fitted would
+        move all three plots, and repaint them, at every arrival."""
+        self.x_span = None
+        values = self.ctx.workspace.frame[feature]
+        if self.categorical or not pd.api.types.is_numeric_dtype(values):
+            return
+        rows = self.ctx.results.segment_rows(self.state)
+        finite = values.iloc[rows].to_numpy(dtype=float)
+        finite = finite[np.isfinite(finite)]
+        if finite.size and finite.max() > finite.min():
+            self.x_span = (float(finite.min()), float(finite.max()))
+            self.curve_plot.plot.setXRange(*self.x_span, padding=0.02)
+
+    def _auto_range(self, plot) -> None:
+        """Fit y to the new items; x too, unless the linked plots share a fixed span."""
+        plot.enableAutoRange(x=self.x_span is None, y=True)
+        if self.x_span is not None:
+            plot.setXRange(*self.x_span, padding=0.02)
 
     def _failed(self, titled, exc) -> None:
         message_item(titled.plot, str(exc))
@@ -157,7 +180,7 @@ class EffectLevel(Level):
         curve, rows = self.curve.result, self.curve.rows
         plot = self.curve_plot.plot
         plot.clear()
-        plot.enableAutoRange()
+        self._auto_range(plot)
         xs = self._grid_x(curve.grid)
         ice = curve.centred() if self.centred.isChecked() else curve.ice
         pd_line = curve.pd - curve.pd[0] if self.centred.isChecked() else curve.pd
@@ -206,7 +229,7 @@ class EffectLevel(Level):
         curve = self.curve.result
         plot = self.dist_plot.plot
         plot.clear()
-        plot.enableAutoRange()
+        self._auto_range(plot)
         counts = np.asarray(curve.counts, float)
         if curve.edges is None:
             xs = np.arange(len(counts))
@@ -290,7 +313,7 @@ class EffectLevel(Level):
         ws = self.ctx.workspace
         plot = self.scatter_plot.plot
         plot.clear()
-        plot.enableAutoRange()
+        self._auto_range(plot)
         j = list(att.features).index(self.feature)
         keep = thin_indices(len(rows), seed=ws.settings.seed)
         rows, contrib = rows[keep], att.values[keep, j]

@@ -64,7 +64,7 @@ class PairsLevel(Level):
         self.map_plot = TitledPlot("Pair map", "", "")
         self.pair_scatter = TitledPlot("Pair scatter", "", "")
         self.matrix_plot.plot.invertY(True)
-        self.matrix_plot.plot.showGrid(x=False, y=False)
+        self.matrix_plot.grid.hide()
         self.matrix_plot.plot.setAspectLocked(True)
         grid = QGridLayout()
         grid.addWidget(self.matrix_plot, 0, 0, 2, 1)

@@ -204,9 +204,7 @@ class VersionsLevel(Level):
         self.bars_b = TitledPlot("Contribution bars under B", "", "")
         self.bars_diff = TitledPlot("Difference B − A", "", "")
         for p in (self.bars_a, self.bars_b, self.bars_diff):
-            p.plot.invertY(True)
-            # Equal heights keep the linked bars in line; two lines, as the narrow ones wrap.
-            p.title_label.setFixedHeight(40)
+            p.plot.invertY(True)  # titles of two lines' height keep the linked bars in line
         for p in (self.bars_b, self.bars_diff):
             p.plot.setYLink(self.bars_a.plot)
             p.plot.getAxis("left").setStyle(showValues=False)
