@@ -1,6 +1,7 @@
 """Speed of the window (a script, not a test): ``python tests/benchmarks/bench_ui.py``.
 
-Run one part with its name as argument (``heartbeat``, ``trial_values``, ``portfolio_200k``,
+Run one part with its name as argument (``heartbeat``, ``heartbeat_levels`` (the heartbeat on
+a visit to each level with jobs), ``trial_values``, ``portfolio_200k``,
 ``trial_values_bars_only``, ``trial_values_in_workers``; ``heartbeat_threads`` runs the heartbeat with every job in threads,
 as before the worker processes, for comparison).
 
@@ -43,6 +44,7 @@ def _window(synchronous: bool):
     win.show()
     win.ctx.runner.warm_up()  # as ``workbench`` does at launch (no-op when synchronous)
     open_demo(win, rows=5000)
+    win.warm_levels()  # as ``workbench`` does once the files are open
     return app, win
 
 
@@ -97,9 +99,20 @@ def _short_stack(frame, depth: int = 5) -> str:
     return " < ".join(parts[:depth])
 
 
-def heartbeat(*, processes: int | None = None) -> dict:
-    """Worst main-thread gap while the Effect level's jobs run for model B: first visit (engine
-    imports and compiled kernels loading), then again with another seed (steady state)."""
+EFFECT_VISITS = (("first", 0, {"model": "B", "level": "Effect", "feature": "debt_to_income"}),
+                 ("again", 1, {"model": "B", "level": "Effect", "feature": "debt_to_income"}))
+# Every level with jobs, each with a seed not used before (so its jobs run, not the cache).
+LEVEL_VISITS = tuple((level, 10 + i, {"model": "B", "level": level, "row": 7,
+                                      "feature": "annual_income",
+                                      "pair": ("annual_income", "debt_to_income")})
+                     for i, level in enumerate(("Case", "Effect", "Ranking", "Pairs", "Versions",
+                                                "Checks")))
+
+
+def heartbeat(*, processes: int | None = None, visits=EFFECT_VISITS) -> dict:
+    """Worst main-thread gap while a level's jobs run: by default the Effect level for model B,
+    first visit (engine imports and compiled kernels loading), then again with another seed
+    (steady state); ``visits``: (name, seed, focus changes) of each run."""
     from PySide6.QtCore import QTimer
 
     from workbench.ui.jobs import spin_events
@@ -108,7 +121,7 @@ def heartbeat(*, processes: int | None = None) -> dict:
     if processes is not None:
         win.ctx.runner.processes = processes  # 0: every job in threads, as before the pool
     out = {}
-    for run, seed in (("first", 0), ("again", 1)):
+    for run, seed, changes in visits:
         beats, during, cpu, waited = [], [], [], []
         timer = QTimer()
         sampler = StackSampler().start()
@@ -123,7 +136,7 @@ def heartbeat(*, processes: int | None = None) -> dict:
         timer.timeout.connect(beat)
         timer.start(10)
         win.ctx.workspace.update_settings(seed=seed)
-        win.ctx.focus.update(model="B", level="Effect", feature="debt_to_income")
+        win.ctx.focus.update(**changes)
         start = time.perf_counter()
         while win.ctx.runner.running or time.perf_counter() - start < 0.5:
             spin_events(5)  # not app.processEvents(): see workbench.ui.jobs.spin_events
@@ -305,6 +318,7 @@ if __name__ == "__main__":
     only = sys.argv[1:]
     for name, fn in (("heartbeat", heartbeat), ("trial_values", trial_values),
                      ("heartbeat_threads", lambda: heartbeat(processes=0)),
+                     ("heartbeat_levels", lambda: heartbeat(visits=LEVEL_VISITS)),
                      ("portfolio_200k", portfolio_200k),
                      ("trial_values_bars_only", lambda: trial_values(with_reasons=False)),
                      ("trial_values_in_workers", trial_values_in_workers)):

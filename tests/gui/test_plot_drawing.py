@@ -58,3 +58,17 @@ def test_effect_linked_plots_share_the_segments_span(demo_window):
     win.ctx.focus.update(feature="employment_type")  # categorical: the plots fit themselves
     assert win.ctx.runner.wait_idle(300)
     assert effect.x_span is None
+
+
+def test_progress_strip_shows_whole_percentages_clamped(qtbot):
+    from workbench.ui.job_area import ProgressStrip
+
+    strip = ProgressStrip()
+    qtbot.addWidget(strip)
+    assert strip.text() == "0%"
+    strip.set_fraction(0.426)
+    assert strip.percent == 43 and strip.text() == "43%"
+    strip.set_fraction(1.7)
+    assert strip.text() == "100%"
+    strip.set_fraction(-0.2)
+    assert strip.text() == "0%"

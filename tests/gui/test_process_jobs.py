@@ -124,3 +124,20 @@ def test_shared_inputs_are_written_once(demo_window, pool_runner):
     again = lane._ref(Shared(ws.frame))
     other = lane._ref(Shared(ws.adapter("A")))
     assert first == again and other.key != first.key
+
+
+def test_warm_up_writes_the_models_and_data_and_paints_hidden_levels(demo_window, pool_runner,
+                                                                     qtbot, monkeypatch):
+    win = demo_window
+    ws = win.ctx.workspace
+    monkeypatch.setattr(win.ctx, "runner", pool_runner)  # worker processes, not synchronous
+    grabbed = []
+    for level in win.levels.values():
+        monkeypatch.setattr(level, "grab", lambda level=level: grabbed.append(level.name))
+    win.warm_levels()
+    hidden = [name for name, level in win.levels.items() if not level.isVisible()]
+    qtbot.waitUntil(lambda: len(grabbed) == len(hidden), timeout=10_000)
+    assert grabbed == hidden and win.current_level().name not in grabbed
+    written = pool_runner.lane._shared
+    for obj in (ws.adapter("A"), ws.adapter("B"), ws.frame, ws.background_frame()):
+        assert id(obj) in written

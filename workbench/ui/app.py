@@ -157,6 +157,7 @@ def run_app(*, demo: bool = False, snapshot_dir: Path | None = None, model: Path
         open_demo(window)
     else:
         open_files(window, model=model, data=data, target=target, model_b=model_b, trust=trust)
+    window.warm_levels()
     if snapshot_dir is not None:
         for path in snapshot(window, snapshot_dir):
             print(path)

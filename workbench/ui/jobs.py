@@ -212,6 +212,14 @@ class JobRunner(QObject):
         if not self.synchronous and self.processes != 0:
             self.lane.warm_up()
 
+    def share_ahead(self, obj) -> None:
+        """Write ``obj`` for the worker processes now (models, data: pickled once, 10-20 ms
+        each), so that the first job using it does not pay for it on a visit."""
+        if not self.synchronous and self.processes != 0 and obj is not None:
+            from workbench.ui.pool_tasks import Shared
+
+            self.lane.share(Shared(obj))
+
     def _run_in_process(self, job: Job) -> None:
         # The main thread polls the futures (every 50 ms while any runs) rather than being told
         # from the pool's own thread: PySide 6.12 signals emitted from a plain Python thread

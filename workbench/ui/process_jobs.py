@@ -94,6 +94,10 @@ class ProcessLane:
             pool.submit(pool_tasks.warm_up)
         self._pool(quick=True).submit(pool_tasks.warm_up)
 
+    def share(self, shared: Shared) -> None:
+        """Write a shared object ahead of the first task that needs it."""
+        self._ref(shared)
+
     def _ref(self, shared: Shared) -> SharedRef:
         ident = id(shared.obj)
         held = self._shared.get(ident)

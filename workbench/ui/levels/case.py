@@ -220,7 +220,10 @@ class CaseLevel(Level):
         self.heading.setText(f"<b>Case</b> — row {state.row}{ident}, model {state.model} ({slot.name})")
         self._fill_table(adapter)
         self.data_score = None
-        self.rescore()
+        # scored on the next turn of the event loop: the level is painted first, and the
+        # window does not hold the switch, the table and a model call in one go
+        self.score_label.setText("Scoring…")
+        self.draws.later(self.rescore)
 
     def _original(self) -> pd.DataFrame:
         return self.ctx.workspace.frame.iloc[[self.state.row]]
@@ -355,11 +358,15 @@ class CaseLevel(Level):
         frame = self.trial_frame()
         try:
             with single_threaded():
-                if self.data_score is None:
+                # one row through a pipeline costs ~25 ms of the window's time: without trial
+                # values the row's score in the data is the one just computed
+                if self.data_score is None and self.trial:
                     self.data_score = float(adapter.response(self._original())[0])
                 output = float(adapter.score(frame)[0])
                 self.trial_score = float(adapter.response_from_output(np.array([output]))[0]) \
                     if adapter.output_kind != "raw score" else float(adapter.response(frame)[0])
+                if self.data_score is None:
+                    self.data_score = self.trial_score
         except Exception as exc:  # noqa: BLE001 - the model refusing trial values is the user's to see
             self.trial_score = None
             self.score_label.setText(f"The model could not score these values: {exc}")
