@@ -1,7 +1,7 @@
 """Speed of the window (a script, not a test): ``python tests/benchmarks/bench_ui.py``.
 
 Run one part with its name as argument (``heartbeat``, ``heartbeat_levels`` (the heartbeat on
-a visit to each level with jobs), ``trial_values``, ``portfolio_200k``,
+a visit to each level with jobs), ``trial_values``, ``portfolio_200k``, ``demo_startup``,
 ``trial_values_bars_only``, ``trial_values_in_workers``; ``heartbeat_threads`` runs the heartbeat with every job in threads,
 as before the worker processes, for comparison).
 
@@ -314,12 +314,49 @@ def portfolio_200k() -> dict:
             "numpy_argsort_ms": round(plain * 1000, 1), "sort_ratio": round(sort / plain, 1)}
 
 
+STARTUP = """
+import time
+t0 = time.perf_counter()
+from workbench.ui.app import application, open_demo
+from workbench.ui.window import MainWindow
+from workbench.ui.jobs import spin_events
+app = application()
+win = MainWindow()
+win.show()
+win.ctx.runner.warm_up()
+shown = time.perf_counter()
+open_demo(win)
+win.warm_levels()
+opened = time.perf_counter()
+portfolio = win.levels["Portfolio"]
+while portfolio._scores is None and time.perf_counter() - t0 < 120:
+    spin_events(5)
+scored = time.perf_counter()
+print(round(shown - t0, 2), round(opened - t0, 2), round(scored - t0, 2), portfolio.model.rowCount())
+import os
+win.ctx.runner.shutdown()
+os._exit(0)
+"""
+
+
+def demo_startup() -> dict:
+    """Seconds from a fresh interpreter to the window shown, the demo open (cached demo files)
+    and the Portfolio filled with the challenger's scores, as ``workbench demo`` does it."""
+    import subprocess
+
+    out = subprocess.run([sys.executable, "-c", STARTUP], capture_output=True, text=True,
+                         env={**os.environ, "QT_QPA_PLATFORM": "offscreen"}, timeout=300)
+    shown, opened, scored, rows = out.stdout.split()[-4:]
+    return {"window_shown_s": float(shown), "demo_open_s": float(opened),
+            "portfolio_scored_s": float(scored), "rows": int(rows)}
+
+
 if __name__ == "__main__":
     only = sys.argv[1:]
     for name, fn in (("heartbeat", heartbeat), ("trial_values", trial_values),
                      ("heartbeat_threads", lambda: heartbeat(processes=0)),
                      ("heartbeat_levels", lambda: heartbeat(visits=LEVEL_VISITS)),
-                     ("portfolio_200k", portfolio_200k),
+                     ("portfolio_200k", portfolio_200k), ("demo_startup", demo_startup),
                      ("trial_values_bars_only", lambda: trial_values(with_reasons=False)),
                      ("trial_values_in_workers", trial_values_in_workers)):
         if not only or name in only:
