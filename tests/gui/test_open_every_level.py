@@ -115,14 +115,14 @@ def test_bundled_dataset_every_level(window, cancer_files, tmp_path):
     pairs = _visit(window, "Pairs")
     assert pairs.shown is not None and pairs.shown.shape == (len(features),) * 2
     assert sorted(pairs.order) == sorted(features)
-    assert "Pair map" in pairs.map_plot.title and features[0] in pairs.map_plot.title
+    assert "Pair map" in pairs.map_plot.title and features[0] in pairs.map_plot.tip
     top = float(np.nanmax(pairs.shown))
     assert pairs.colorbar.axis.autoSIPrefixScale == 1.0  # the scale's numbers are the values
     low, high = pairs.colorbar.levels()
     if top > 1:  # H of a pair with a tiny joint effect: the scale stops at 1 and says so
-        assert (low, high) == (0.0, 1.0) and "H above 1" in pairs.matrix_plot.title
+        assert (low, high) == (0.0, 1.0) and "H above 1" in pairs.matrix_plot.tip
     else:
-        assert high == pytest.approx(max(top, 0.1)) and "H above 1" not in pairs.matrix_plot.title
+        assert high == pytest.approx(max(top, 0.1)) and "H above 1" not in pairs.matrix_plot.tip
 
     versions = _visit(window, "Versions")
     assert versions.comparison is None

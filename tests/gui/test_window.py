@@ -176,7 +176,7 @@ def test_pairs_cell_opens_pair_map(demo_window):
     pairs = win.levels["Pairs"]
     pairs.click_cell(1, 0)
     assert win.ctx.focus.state.pair == (pairs.order[0], pairs.order[1])
-    assert f"over {pairs.order[0]} and {pairs.order[1]}" in pairs.map_plot.title
+    assert f"over {pairs.order[0]} and {pairs.order[1]}" in pairs.map_plot.tip
     assert "joint attribution" in pairs.pair_scatter.title
     for index in range(pairs.kind.count()):
         pairs.kind.setCurrentIndex(index)

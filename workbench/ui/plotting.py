@@ -147,10 +147,12 @@ class TitledPlot(QWidget):
                                      slot=self._moved)
         self._add_export_actions()
 
-    def set_text(self, title: str, x_label: str | None = None, y_label: str | None = None) -> None:
-        self.title = title
+    def set_text(self, title: str, x_label: str | None = None, y_label: str | None = None,
+                 tip: str | None = None) -> None:
+        """The title (two lines' room; ``tip``, or the title in full, as its tooltip)."""
+        self.title, self.tip = title, tip or title
         self.title_label.setText(title)
-        self.title_label.setToolTip(title)  # in full, should two lines not hold it
+        self.title_label.setToolTip(self.tip)
         if x_label is not None:
             self.plot.setLabel("bottom", x_label)
         if y_label is not None:

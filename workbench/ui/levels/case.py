@@ -461,13 +461,16 @@ class CaseLevel(Level):
         span = float(np.max(np.abs(values))) if n else 1.0
         plot.setXRange(-span * 1.1, span * 1.1, padding=0)
         residual = getattr(self.contributions, "residual", None)
-        extra = ""
+        extra = tip = ""
         if residual is not None and np.size(residual):
-            extra = f"; additivity residual {float(np.ravel(residual)[0]):.1e}"
+            r = float(np.ravel(residual)[0])
+            extra = f"; residual {r:.0e}"
+            tip = (f" The additivity residual, {r:.1e}, is the output less the base value and "
+                   "the contributions: near 0, the bars add up to the score.")
         method = getattr(self.contributions, "method", "")
-        self.bars.set_text(
-            f"Contribution bars: what moved this case's score ({method}{extra})",
-            adapter.output_units, None)  # the units alone: a longer title was cut
+        # a short title: the bars take a quarter of the level's width beside the running total
+        self.bars.set_text(f"Contribution bars ({method}{extra})", adapter.output_units, None,
+                           tip=f"What moved this case's score, by the {method} method.{tip}")
         self.bars.title_text = self.bars.title
 
     @staticmethod
@@ -505,8 +508,9 @@ class CaseLevel(Level):
         hi = max(xs.max(), *(m[0] for m in marks))
         pad = (hi - lo) * 0.08 or 0.5
         plot.setXRange(lo - pad, hi + pad, padding=0)
-        self.running.set_text("Running total: base value to this case, cutoff marked",
-                              adapter.output_units, None)
+        self.running.set_text("Running total to this case", adapter.output_units, None,
+                              tip="From the base value, each contribution added in the bars' "
+                                  "order, to this case's output; the cutoff is marked.")
         self.cutoff_output = cutoff_output
 
     # ---- hover and clicks -------------------------------------------------------------------------

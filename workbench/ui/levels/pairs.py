@@ -74,7 +74,10 @@ class PairsLevel(Level):
         grid.setColumnStretch(0, 5)
         grid.setColumnStretch(1, 3)
         self.note = QLabel("Hover a cell for its value; click it to open the pair map and pair "
-                           "scatter. Outlined: blocks of associated features (association ≥ 0.5).")
+                           "scatter. Grey: not computed. Outlined: blocks of associated features "
+                           "(association ≥ 0.5); at the right, the clustering tree of the "
+                           "association (dashed: the block cut).")
+        self.note.setWordWrap(True)
         self.note.setStyleSheet("color: #555;")
         layout = QVBoxLayout(self)
         layout.addLayout(top)
@@ -244,8 +247,10 @@ class PairsLevel(Level):
                 mark = QGraphicsRectItem(QRectF(b - 0.5, a - 0.5, 1, 1))
                 mark.setPen(pg.mkPen("#D55E00", width=2))
                 plot.addItem(mark)
-        plot.setXRange(-0.5, p - 0.5 + self.tree_width(p) + 0.4, padding=0.01)
-        plot.setYRange(-0.5, p - 0.5, padding=0.01)
+        # one call: with the aspect locked, the view then widens whichever range is short
+        # (two calls kept the last and cut the other, hiding the first columns)
+        plot.setRange(xRange=(-0.5, p - 0.5 + self.tree_width(p) + 0.4), yRange=(-0.5, p - 0.5),
+                      padding=0.01)
         if self.colorbar is not None:
             plot.layout.removeItem(self.colorbar)
             self.colorbar.setParentItem(None)
@@ -259,14 +264,15 @@ class PairsLevel(Level):
         self.colorbar.axis.enableAutoSIPrefix(False)
         self.colorbar.setImageItem(image, insert_in=plot)
         scale = "signed: −1 … +1, diverging scale" if signed else "strength, sequential scale"
-        extra = ""
+        short = extra = ""
         if kind in ("h", "h_strength") and self.h is not None:
-            extra = f"; pairs computed among the {len(self.h.screened)} strongest ({self.h.sample} rows)"
+            short = f" among the {len(self.h.screened)} strongest ({self.h.sample} rows)"
+            extra = f"; pairs computed among the {len(self.h.screened)} strongest features"
             if clipped:
                 extra += f"; H above 1 (up to {top:.3g}, tiny joint effects) at the top colour"
-        self.matrix_plot.set_text(f"{KINDS[kind]} — {scale}{extra}; grey: not computed; at the "
-                                  "right the clustering tree of the association (dashed: the "
-                                  "block cut)", "", "")
+                short += "; H above 1 at the top colour"
+        self.matrix_plot.set_text(f"{KINDS[kind]}{short}", "", "",
+                                  tip=f"{KINDS[kind]}: {scale}{extra}; grey: not computed.")
 
     def _scale_label(self, kind: str) -> str:
         adapter = self.ctx.workspace.adapter(self.state.model)
@@ -348,8 +354,9 @@ class PairsLevel(Level):
         plot.setXRange(ea[0], ea[-1], padding=0)
         plot.setYRange(eb[0], eb[-1], padding=0)
         self.map_axes = (ga, gb)
-        self.map_plot.set_text(f"Pair map: mean {pm.units} over {pm.a} and {pm.b} "
-                               f"({pm.rows_used} rows; dark = low, yellow = high)", pm.a, pm.b)
+        self.map_plot.set_text(f"Pair map: mean {pm.units} ({pm.rows_used} rows; dark low, "
+                               "yellow high)", pm.a, pm.b,
+                               tip=f"Mean {pm.units} over {pm.a} and {pm.b}, {pm.rows_used} rows.")
 
     def _hover_map(self, x, y) -> str | None:
         if self.pair_map is None:
@@ -388,8 +395,10 @@ class PairsLevel(Level):
         plot.getAxis("bottom").setTicks([ta] if ta else None)
         plot.getAxis("left").setTicks([tb] if tb else None)
         units = self.ctx.workspace.adapter(self.state.model).output_units
-        self.pair_scatter.set_text(f"Pair scatter coloured by the joint attribution of {a} and {b} "
-                                   f"(blue lowers, yellow raises; ±{lim:.2g} {units})", a, b)
+        self.pair_scatter.set_text(f"Pair scatter: joint attribution (blue lowers, yellow "
+                                   f"raises; ±{lim:.2g} {units})", a, b,
+                                   tip=f"Each row coloured by the joint attribution of {a} and "
+                                       f"{b}.")
 
     def _hover_scatter(self, x, y) -> str | None:
         point = point_under(self.scatter_item, x, y)
