@@ -144,8 +144,10 @@ def run_app(*, demo: bool = False, snapshot_dir: Path | None = None, model: Path
             model_b: Path | None = None, data: Path | None = None, target: str | None = None,
             trust: bool = False) -> int:
     app = application()
+    from workbench.ui import dialogs
     from workbench.ui.window import MainWindow
 
+    dialogs.set_unattended(snapshot_dir is not None)  # no dialog waits for an answer
     window = MainWindow()
     window.show()
     # The worker processes start and import the engine while the files open, so the first
@@ -159,14 +161,31 @@ def run_app(*, demo: bool = False, snapshot_dir: Path | None = None, model: Path
         open_files(window, model=model, data=data, target=target, model_b=model_b, trust=trust)
     window.warm_levels()
     if snapshot_dir is not None:
+        missing = _not_opened(window, model=model, model_b=model_b, data=data)
+        if missing:
+            print(f"workbench: not saving snapshots: {missing} did not open (see above)",
+                  file=sys.stderr)
+            _leave(window, 2)
         for path in snapshot(window, snapshot_dir):
             print(path)
-        window.close()
-        # Worker processes, if the runner has them, would outlive os._exit holding our stdout.
-        shutdown = getattr(window.ctx.runner, "shutdown", None)
-        if shutdown is not None:
-            shutdown()
-        sys.stdout.flush()
-        # Skip interpreter teardown: PySide6 with pyqtgraph can crash while finalising.
-        os._exit(0)
+        _leave(window, 0)
     return app.exec()
+
+
+def _not_opened(window, *, model, model_b, data) -> str:
+    """The files asked for that are not open (refused, unreadable), as one phrase."""
+    ws = window.ctx.workspace
+    wanted = [(model, ws.adapter("A")), (model_b, ws.adapter("B")), (data, ws.frame)]
+    return ", ".join(Path(p).name for p, opened in wanted if p is not None and opened is None)
+
+
+def _leave(window, code: int) -> None:
+    window.close()
+    # Worker processes, if the runner has them, would outlive os._exit holding our stdout.
+    shutdown = getattr(window.ctx.runner, "shutdown", None)
+    if shutdown is not None:
+        shutdown()
+    sys.stdout.flush()
+    sys.stderr.flush()
+    # Skip interpreter teardown: PySide6 with pyqtgraph can crash while finalising.
+    os._exit(code)

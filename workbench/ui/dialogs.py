@@ -6,6 +6,7 @@ Error messages open window-modal without blocking, so the window keeps working b
 
 from __future__ import annotations
 
+import sys
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -81,8 +82,27 @@ class TrustDialog(QDialog):
         self.resize(560, 320)
 
 
+# Unattended (``--snapshot``): nobody is there to answer, so nothing waits on a dialog; the
+# question is refused and said on stderr, and messages go there too.
+_unattended = False
+
+
+def set_unattended(on: bool) -> None:
+    global _unattended
+    _unattended = bool(on)
+
+
+def _say(text: str) -> None:
+    print(text, file=sys.stderr, flush=True)
+
+
 def ask_trust(parent, request: TrustRequest) -> bool:
     """True only when the user said they trust the file."""
+    if _unattended:
+        listed = f" ({', '.join(request.untrusted)})" if request.untrusted else ""
+        _say(f"{request.path.name} was not opened: it needs trust{listed}. Pass --trust only if "
+             "you trust where the file came from.")
+        return False
     return TrustDialog(request, parent).exec() == QDialog.DialogCode.Accepted
 
 
@@ -93,6 +113,10 @@ def findings_text(findings) -> str:
 
 def ask_open_despite(parent, what: str, findings) -> bool:
     """Errors found: ask whether to open anyway (default: keep what was open)."""
+    if _unattended:
+        _say(f"{what} was not opened, it has problems the model cannot work around:\n"
+             + findings_text(findings))
+        return False
     box = QMessageBox(QMessageBox.Icon.Warning, "Problems found",
                       f"{what} has problems the model cannot work around:", parent=parent)
     box.setInformativeText(findings_text(findings))
@@ -106,6 +130,8 @@ def ask_open_despite(parent, what: str, findings) -> bool:
 def show_message(parent, title: str, text: str, details: str = "", *,
                  icon=QMessageBox.Icon.Warning) -> QMessageBox:
     """A non-blocking message; the window stays usable and whatever was open stays open."""
+    if _unattended:
+        _say(f"{title}: {text}" + (f"\n{details}" if details else ""))
     box = QMessageBox(icon, title, text, QMessageBox.StandardButton.Ok, parent)
     box.setObjectName("message")
     if details:
