@@ -184,7 +184,10 @@ def _leave(window, code: int) -> None:
     # Worker processes, if the runner has them, would outlive os._exit holding our stdout.
     shutdown = getattr(window.ctx.runner, "shutdown", None)
     if shutdown is not None:
-        shutdown()
+        shutdown(wait=True)  # ended, so their semaphores are released, not reported as leaked
+    import gc
+
+    gc.collect()
     sys.stdout.flush()
     sys.stderr.flush()
     # Skip interpreter teardown: PySide6 with pyqtgraph can crash while finalising.

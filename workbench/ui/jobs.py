@@ -262,11 +262,12 @@ class JobRunner(QObject):
                 self._process_ended(job)
                 break
 
-    def shutdown(self) -> None:
-        """Cancel everything and stop the worker processes (the application is closing)."""
+    def shutdown(self, *, wait: bool = False) -> None:
+        """Cancel everything and stop the worker processes (the application is closing);
+        ``wait``: until they have ended and their queues are released."""
         self.cancel_all()
         if self._lane is not None:
-            self._lane.shutdown()
+            self._lane.shutdown(wait=wait)
             self._lane = None
 
     # ---- cancelling ---------------------------------------------------------------------------

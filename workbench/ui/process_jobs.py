@@ -150,12 +150,12 @@ class ProcessLane:
             except (queue.Empty, OSError, ValueError):
                 return out
 
-    def shutdown(self) -> None:
+    def shutdown(self, *, wait: bool = False) -> None:
         for slot in list(self._slot_of.values()):
             self._flags[slot] = 1
         for pool in (self._executor, self._quick):
             if pool is not None:
-                pool.shutdown(wait=False, cancel_futures=True)
+                pool.shutdown(wait=wait, cancel_futures=True)
         self._executor = self._quick = None
         shutil.rmtree(self._folder, ignore_errors=True)
 
