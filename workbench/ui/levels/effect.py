@@ -117,7 +117,7 @@ class EffectLevel(Level):
         self.heading.setText(f"<b>Effect</b> — {feature}, model {s.model}{row}")
         for p in (self.curve_plot, self.ale_plot, self.scatter_plot, self.dist_plot):
             message_item(p.plot, "Computing…")
-        self._fix_x_span(adapter, feature)
+        self._fix_x_span(feature)
         rel = self.relevant()
         r = self.ctx.results
         # Every arrival is drawn from the draw queue: one plot per event-loop turn.
@@ -136,7 +136,7 @@ class EffectLevel(Level):
             r.case_attributions(s.model, ws.frame.iloc[[s.row]], values_digest({"row": s.row}),
                                 later(self._focus_arrived), None, rel)
 
-    def _fix_x_span(self, adapter, feature: str) -> None:
+    def _fix_x_span(self, feature: str) -> None:
         """The linked plots (curve, distribution, scatter) share one x range, set from the
         segment's values before any result arrives: a range that each arrival re-fitted would
         move all three plots, and repaint them, at every arrival."""
