@@ -172,10 +172,9 @@ class MainWindow(QMainWindow):
         jobs ran: ~45 ms of painting against ~15 ms later (measured on the Case level), enough
         to stall the window past 100 ms on a first visit.
         """
-        from workbench.ui.threads import single_threaded
+        from workbench.ui.threads import find_thread_libraries
 
-        with single_threaded():  # finds the thread libraries once (13 ms), before any visit
-            pass
+        find_thread_libraries()
         ws, runner = self.ctx.workspace, self.ctx.runner
         # the models and data written once for the worker processes, then the hidden levels
         steps = [lambda obj=obj: runner.share_ahead(obj)
